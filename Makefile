@@ -1,0 +1,91 @@
+# tachist — plain Makefile. Sources are found by folder: every app/<layer>/*.c is part of the
+# program, every tests/test_*.c is one cmocka test program, every tests/e2e/*.sh one end-to-end
+# script, every tests/bench/*.sh one benchmark. Adding a file needs no edit here.
+
+BUILD    ?= build
+CC       ?= cc
+CFLAGS   ?= -O2 -g
+WARN     := -std=c11 -Wall -Wextra -Wpedantic -Werror
+PKGS     := sdl2 SDL2_image sqlite3 inih libcjson gsl ncursesw
+PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
+PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lcsv -lm
+CPPFLAGS += -Iinclude -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE
+Q        ?= @
+ALL_CFLAGS = $(WARN) $(CPPFLAGS) $(PKG_CFLAGS) $(CFLAGS) -MMD -MP
+
+SRC      := $(wildcard app/*/*.c)
+LIBSRC   := $(filter-out app/cmd/main.c,$(SRC))
+OBJ      := $(SRC:%.c=$(BUILD)/%.o)
+LIBOBJ   := $(LIBSRC:%.c=$(BUILD)/%.o)
+TESTSRC  := $(wildcard tests/test_*.c)
+TESTBIN  := $(TESTSRC:tests/%.c=$(BUILD)/tests/%)
+TOOLSRC  := $(wildcard tests/tools/*.c)
+TOOLBIN  := $(TOOLSRC:tests/tools/%.c=$(BUILD)/tools/%)
+
+# Debian packages the build, the tests and the reference checks need.
+DEB_PKGS := gcc make pkg-config libncurses-dev libsdl2-dev libsdl2-image-dev libsqlite3-dev \
+            libinih-dev libcsv-dev libcjson-dev libgsl-dev libcmocka-dev xvfb xauth \
+            r-base-core r-cran-psyphy python3-numpy python3-scipy python3-statsmodels \
+            clang libclang-rt-14-dev librsvg2-bin sqlite3 tmux libxml2-utils
+
+.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets
+all: $(BUILD)/tachist
+
+$(BUILD)/tachist: $(OBJ)
+	$(CC) $(CFLAGS) -o $@ $(OBJ) $(PKG_LIBS) $(LDFLAGS)
+
+$(BUILD)/libtachist.a: $(LIBOBJ)
+	@rm -f $@
+	ar rcs $@ $(LIBOBJ)
+
+$(BUILD)/%.o: %.c
+	@mkdir -p $(dir $@)
+	@echo "  CC      $<"
+	$(Q)$(CC) $(ALL_CFLAGS) -c -o $@ $<
+
+$(BUILD)/tests/%: tests/%.c $(BUILD)/libtachist.a
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -o $@ $< $(BUILD)/libtachist.a $(PKG_LIBS) -lcmocka $(LDFLAGS)
+
+$(BUILD)/tools/%: tests/tools/%.c $(BUILD)/libtachist.a
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -o $@ $< $(BUILD)/libtachist.a $(PKG_LIBS) $(LDFLAGS)
+
+check-build: $(BUILD)/tachist $(TESTBIN) $(TOOLBIN)
+
+# Install what is missing on a Debian 12 machine; nothing when all is there.
+deps:
+	@missing=""; for p in $(DEB_PKGS); do \
+	  dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q 'ok installed' || missing="$$missing $$p"; \
+	done; \
+	if [ -z "$$missing" ]; then exit 0; fi; \
+	if [ "$$(id -u)" = 0 ]; then \
+	  echo "deps: installing$$missing"; \
+	  apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$missing >/dev/null || exit 1; \
+	else \
+	  echo "deps: missing packages. Run:"; echo "  sudo apt-get install -y$$missing"; exit 1; \
+	fi
+
+# Tests build with AddressSanitizer and UBSan in their own folder.
+SAN := -O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=undefined
+test: deps
+	$(MAKE) --no-print-directory BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
+	$(MAKE) --no-print-directory demo-assets
+	@BUILD=build/san sh tests/run.sh
+
+bench: deps
+	$(MAKE) --no-print-directory BUILD=build/rel CFLAGS="-O2 -g -DNDEBUG" check-build
+	@BUILD=build/rel sh tests/bench/run.sh
+
+demo: deps $(BUILD)/tachist demo-assets
+	./$(BUILD)/tachist demo
+
+fuzz:
+	@sh tests/fuzz/run.sh
+
+demo-assets:
+
+clean:
+	rm -rf build
+
+-include $(OBJ:.o=.d) $(TESTBIN:=.d) $(TOOLBIN:=.d)

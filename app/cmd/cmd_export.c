@@ -1,0 +1,9 @@
+/* cmd_export — `tachist export`: placeholder until its issue lands (see DEVELOPERS.md). */
+#include "cmd.h"
+
+int cmd_export(int argc, char **argv)
+{
+	(void)argc;
+	fprintf(stderr, "tachist: '%s' is not built yet\n", argv[0]);
+	return EXIT_PROBLEMS;
+}

@@ -1,0 +1,149 @@
+/* image — image files to and from RGBA8 buffers through SDL2_image (see image.h).
+ *
+ * SDL2_image decodes every format it supports to an SDL surface, which we convert to RGBA32 (bytes
+ * R, G, B, A in memory). For PNG the stored bit depth and colour type come from the IHDR chunk,
+ * since the decoder reduces 16-bit channels to 8 bits. Surfaces never leave this file. */
+#include "image.h"
+
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <SDL.h>
+#include <SDL_image.h>
+
+static int initialised;
+
+static void image_init(void)
+{
+	if (!initialised) {
+		IMG_Init(IMG_INIT_PNG | IMG_INIT_JPG);
+		initialised = 1;
+	}
+}
+
+/* Reads the PNG signature and IHDR: returns 0 and fills channels/bits, -1 when not a PNG. */
+static int png_header(FILE *f, struct image_info *info)
+{
+	unsigned char h[29];
+	if (fread(h, 1, sizeof h, f) != sizeof h)
+		return -1;
+	static const unsigned char sig[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1a, '\n'};
+	if (memcmp(h, sig, 8) || memcmp(h + 12, "IHDR", 4))
+		return -1;
+	info->bits = h[24];
+	switch (h[25]) {
+	case 0: info->channels = 1; break;
+	case 2: info->channels = 3; break;
+	case 3: info->channels = 3; info->bits = 8; break;  /* palette entries are RGB8 */
+	case 4: info->channels = 2; break;
+	case 6: info->channels = 4; break;
+	default: return -1;
+	}
+	return 0;
+}
+
+static const char *format_of(SDL_RWops *rw)
+{
+	if (IMG_isPNG(rw)) return "png";
+	if (IMG_isJPG(rw)) return "jpg";
+	if (IMG_isBMP(rw)) return "bmp";
+	if (IMG_isGIF(rw)) return "gif";
+	if (IMG_isTIF(rw)) return "tif";
+	if (IMG_isWEBP(rw)) return "webp";
+	if (IMG_isPNM(rw)) return "pnm";
+	return NULL;
+}
+
+int image_load(const char *path, struct image *img, struct image_info *info, char *err,
+	       size_t errlen)
+{
+	image_init();
+	memset(img, 0, sizeof *img);
+	memset(info, 0, sizeof *info);
+	FILE *f = fopen(path, "rb");
+	if (!f) {
+		snprintf(err, errlen, "cannot open %s", path);
+		return -1;
+	}
+	int is_png = png_header(f, info) == 0;
+	fclose(f);
+	SDL_RWops *rw = SDL_RWFromFile(path, "rb");
+	if (!rw) {
+		snprintf(err, errlen, "cannot open %s", path);
+		return -1;
+	}
+	const char *fmt = format_of(rw);
+	if (!fmt) {
+		SDL_RWclose(rw);
+		snprintf(err, errlen, "%s is not an image in a supported format", path);
+		return -1;
+	}
+	snprintf(info->format, sizeof info->format, "%s", fmt);
+	SDL_Surface *s = IMG_Load_RW(rw, 1);
+	if (!s) {
+		snprintf(err, errlen, "%s cannot be decoded (%s)", path, IMG_GetError());
+		return -1;
+	}
+	if (!is_png) {
+		SDL_PixelFormat *pf = s->format;
+		info->bits = 8;
+		info->channels = pf->Amask ? 4 : (pf->BitsPerPixel == 8 && !pf->palette) ? 1 : 3;
+	}
+	SDL_Surface *c = SDL_ConvertSurfaceFormat(s, SDL_PIXELFORMAT_RGBA32, 0);
+	SDL_FreeSurface(s);
+	if (!c) {
+		snprintf(err, errlen, "%s cannot be converted (%s)", path, SDL_GetError());
+		return -1;
+	}
+	info->width = img->width = c->w;
+	info->height = img->height = c->h;
+	size_t row = (size_t)c->w * 4;
+	img->rgba = malloc(row * (size_t)c->h);
+	if (!img->rgba) {
+		SDL_FreeSurface(c);
+		snprintf(err, errlen, "out of memory for %s", path);
+		return -1;
+	}
+	SDL_LockSurface(c);
+	for (int y = 0; y < c->h; y++)
+		memcpy(img->rgba + row * (size_t)y, (const unsigned char *)c->pixels + (size_t)c->pitch * (size_t)y, row);
+	SDL_UnlockSurface(c);
+	SDL_FreeSurface(c);
+	return 0;
+}
+
+int image_probe(const char *path, struct image_info *info, char *err, size_t errlen)
+{
+	struct image img;
+	if (image_load(path, &img, info, err, errlen))
+		return -1;
+	image_free(&img);
+	return 0;
+}
+
+int image_save_png(const char *path, const struct image *img, char *err, size_t errlen)
+{
+	image_init();
+	SDL_Surface *s = SDL_CreateRGBSurfaceWithFormatFrom(img->rgba, img->width, img->height, 32,
+							    img->width * 4, SDL_PIXELFORMAT_RGBA32);
+	if (!s) {
+		snprintf(err, errlen, "cannot wrap pixels for %s (%s)", path, SDL_GetError());
+		return -1;
+	}
+	int rc = IMG_SavePNG(s, path);
+	SDL_FreeSurface(s);
+	if (rc) {
+		snprintf(err, errlen, "cannot write %s (%s)", path, IMG_GetError());
+		return -1;
+	}
+	return 0;
+}
+
+void image_free(struct image *img)
+{
+	if (!img)
+		return;
+	free(img->rgba);
+	img->rgba = NULL;
+}

@@ -1,0 +1,54 @@
+/* cmd — the subcommands and the helpers they share. Each subcommand lives in app/cmd/cmd_<name>.c
+ * and is one row of the table in app/cmd/main.c. Only this layer and the console speak to people. */
+#ifndef TACHIST_CMD_H
+#define TACHIST_CMD_H
+
+#include <stdbool.h>
+#include <stdio.h>
+
+#include "diag.h"
+
+/* Exit codes (DESIGN.md): 0 success, 1 problems found or the work failed, 2 usage error. */
+enum { EXIT_OK = 0, EXIT_PROBLEMS = 1, EXIT_USAGE = 2 };
+
+struct cmd {
+	const char *name;
+	const char *summary;   /* one line for `tachist --help` */
+	const char *usage;     /* full text for `tachist NAME --help` */
+	int (*fn)(int argc, char **argv);   /* argv[0] is the subcommand name */
+};
+
+int cmd_console(int argc, char **argv);
+int cmd_check(int argc, char **argv);
+int cmd_run(int argc, char **argv);
+int cmd_timing(int argc, char **argv);
+int cmd_sessions(int argc, char **argv);
+int cmd_report(int argc, char **argv);
+int cmd_export(int argc, char **argv);
+int cmd_fit(int argc, char **argv);
+int cmd_calc(int argc, char **argv);
+int cmd_stimuli(int argc, char **argv);
+int cmd_merge(int argc, char **argv);
+int cmd_demo(int argc, char **argv);
+
+/* The table row for NAME, or NULL. */
+const struct cmd *cmd_find(const char *name);
+/* True when ARGV holds --help or -h; the caller then prints its usage and returns 0. */
+bool cmd_wants_help(int argc, char **argv);
+/* Prints the usage text of NAME to OUT. */
+void cmd_print_usage(const char *name, FILE *out);
+/* Prints each diagnostic as "FILE:LINE: level: message" to OUT. */
+void cmd_print_diags(const struct diag_list *d, FILE *out);
+/* Resolves the rig file: EXPLICIT when given; else $XDG_CONFIG_HOME/tachist/rig.ini (or
+ * ~/.config/...), else the demo rig in assets-demo/ with a warning on stderr. Returns a malloc'd
+ * path or NULL when none exists. */
+char *cmd_rig_path(const char *explicit_path);
+/* Resolves a path shipped with the program (for example "protocols/demo.ini"): the current folder
+ * first, then beside the executable's source tree. Returns a malloc'd path or NULL. */
+char *cmd_asset_path(const char *rel);
+/* Parses a whole unsigned decimal number; returns 0 or -1. */
+int cmd_parse_u64(const char *s, unsigned long long *out);
+/* Parses a finite double; returns 0 or -1. */
+int cmd_parse_double(const char *s, double *out);
+
+#endif

@@ -1,0 +1,56 @@
+/* plan — the trial plan of a session: which stimulus on which trial, in which block, built
+ * reproducibly from (protocol, stimulus list, rig, seed).
+ *
+ * The same inputs and seed give the same plan on every machine (GSL's mt19937 seeded with the
+ * seed; no other source of randomness), which is what lets a session resume. Epoch durations are
+ * planned in whole frames at the rig's refresh (frames.h). Trials of adaptive blocks carry the
+ * staircase that will choose their level at run time and stim = -1 until then. */
+#ifndef TACHIST_PLAN_H
+#define TACHIST_PLAN_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "diag.h"
+#include "epoch.h"
+
+struct protocol;
+struct stimlist;
+struct rig;
+
+struct plan_trial {
+	int block;        /* index into plan.blocks */
+	int block_trial;  /* 0-based within the block */
+	int trial;        /* 0-based within the session */
+	int stim;         /* index into the stimulus list; -1 when an adaptive rule picks it */
+	int choice;       /* category of the trial (index among the protocol's choices) */
+	int staircase;    /* adaptive: which staircase of the block picks the level; else -1 */
+};
+
+struct plan_block {
+	int proto_block;  /* index into protocol.blocks */
+	size_t first;     /* index of its first trial in plan.trials */
+	size_t ntrials;
+};
+
+struct plan {
+	uint64_t seed;
+	struct plan_trial *trials;
+	size_t ntrials;
+	struct plan_block *blocks;
+	size_t nblocks;
+	int epoch_frames[EPOCH_COUNT];
+	double epoch_actual_ms[EPOCH_COUNT];
+	int stim_px;              /* stimulus longer side in pixels on this rig */
+	double stim_deg_actual;   /* what stim_px subtends */
+	double est_seconds;       /* estimated session length (RT assumed 600 ms when unlimited) */
+	char hash[65];            /* SHA-256 of the plan's trial sequence, for resume checks */
+};
+
+/* Builds the plan. Problems (a block whose filter selects nothing, a run limit that cannot be
+ * met) go to D. Returns 0 or -1. */
+int plan_build(const struct protocol *p, const struct stimlist *l, const struct rig *r,
+	       uint64_t seed, struct plan *out, struct diag_list *d);
+void plan_clear(struct plan *pl);
+
+#endif

@@ -1,0 +1,84 @@
+/* protocol — an experiment as the scientist writes it (an INI file, parsed with inih).
+ *
+ * A protocol names the n choices (category and key), the stimulus list, epoch durations in ms,
+ * display settings and one or more blocks. Paths inside are relative to the protocol file and are
+ * stored resolved. Loaded by io/protocol.c; the key names are documented in README.md. */
+#ifndef TACHIST_PROTOCOL_H
+#define TACHIST_PROTOCOL_H
+
+#include <stdbool.h>
+#include <stddef.h>
+
+#include "diag.h"
+#include "epoch.h"
+
+#define PROTOCOL_MAX_CHOICES 26
+
+struct protocol_choice {
+	char *category;   /* category name as in the stimulus list */
+	char *key;        /* key name as SDL spells it, lower case: "f", "j", "1", "space" */
+	int line;
+};
+
+enum protocol_order { ORDER_RANDOM, ORDER_FIXED };
+enum protocol_feedback { FEEDBACK_NONE, FEEDBACK_MARK };   /* MARK: a tick or a cross at fixation */
+enum protocol_mask { MASK_NONE, MASK_NOISE, MASK_IMAGE };
+enum protocol_scaling { SCALING_LINEAR, SCALING_NEAREST };
+
+/* One filter clause: the list column COLUMN must equal one of VALUES (text match). For the
+ * `level` column the comparison is numeric. */
+struct protocol_filter {
+	char *column;
+	char **values;
+	size_t nvalues;
+};
+
+struct protocol_block {
+	char *name;
+	int line;                      /* line of the block's section header */
+	struct protocol_filter *filters;
+	size_t nfilters;
+	int repeats;                   /* each selected stimulus is shown this many times */
+	enum protocol_order order;
+	int max_run;                   /* longest run of one category allowed; 0 = no limit */
+	bool practice;
+	bool feedback;                 /* feedback shown in this block (practice blocks default yes) */
+	bool repeat_faults;            /* trials with timing faults are shown again at the block end */
+	char *adaptive;                /* name of an adaptive section, NULL for fixed levels */
+};
+
+struct protocol {
+	char *path;                    /* as given */
+	char *dir;                     /* folder of the file, for relative paths */
+	char *text;                    /* full file text, stored with each session */
+	char *name;                    /* short name for files and tables */
+	char *stimuli;                 /* stimulus list path, resolved */
+	int stimuli_line;
+	struct protocol_choice choices[PROTOCOL_MAX_CHOICES];
+	size_t nchoices;
+	double epoch_ms[EPOCH_COUNT];
+	double size_deg;               /* stimulus width (longer side) in degrees */
+	int background;                /* grey level 0..255 */
+	double fixation_deg;           /* fixation mark size; 0 = none */
+	enum protocol_mask mask;
+	char *mask_image;              /* resolved path when mask = image */
+	enum protocol_feedback feedback;
+	enum protocol_scaling scaling;
+	int break_every;               /* trials between rest breaks inside a block; 0 = none */
+	struct protocol_block *blocks;
+	size_t nblocks;
+	void *adaptive;                /* adaptive sections, owned by the adaptive module; may be NULL */
+	size_t nadaptive;
+};
+
+/* Loads and validates PATH. Every problem goes to D as FILE:LINE. Returns 0 when the protocol is
+ * usable (warnings allowed), -1 on any error. P must be released with protocol_clear. */
+int protocol_load(const char *path, struct protocol *p, struct diag_list *d);
+/* Same on text in memory (for tests and the fuzzer); PATH names it in messages and anchors
+ * relative paths. */
+int protocol_parse(const char *path, const char *text, struct protocol *p, struct diag_list *d);
+void protocol_clear(struct protocol *p);
+/* Index of CATEGORY among the choices, or -1. */
+int protocol_choice_index(const struct protocol *p, const char *category);
+
+#endif

@@ -1,0 +1,4 @@
+#ifndef TACHIST_VERSION_H
+#define TACHIST_VERSION_H
+#define TACHIST_VERSION "0.1.0"
+#endif
