@@ -8,7 +8,6 @@
 
 #include <assert.h>
 #include <math.h>
-#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -17,6 +16,7 @@
 #include <gsl/gsl_statistics_double.h>
 
 #include "diag.h"
+#include "sha256.h"
 
 /* Rec. 709 / sRGB luminance weights (IEC 61966-2-1; ITU-R BT.709). */
 #define W_R 0.2126
@@ -175,11 +175,7 @@ void pixels_content_hash(const uint8_t *rgba, int width, int height, char hex[65
 		buf[4 + i] = (uint8_t)(h >> (24 - 8 * i));
 	}
 	memcpy(buf + 8, rgba, n - 8);
-	/* Temporary digest (FNV-1a, 64 bits, zero-padded to 64 hex digits) until sha256.h lands. */
-	uint64_t f = 1469598103934665603ull;
-	for (size_t i = 0; i < n; i++)
-		f = (f ^ buf[i]) * 1099511628211ull;
-	snprintf(hex, 65, "%048d%016llx", 0, (unsigned long long)f);
+	sha256_hex(buf, n, hex);
 	free(buf);
 }
 
