@@ -279,6 +279,10 @@ void console_live_push(struct console *c);
 void console_sessions_push(struct console *c);
 void console_results_push(struct console *c, const char *session_id);
 void console_export_push(struct console *c, const char *session_id);
+/* The rig editor for the profile at PATH (may be NULL: start empty); SIZE_DEG is the protocol's
+ * stimulus size for the worked-out pixels (0: unknown). SAVED gets the written file's path. */
+void console_rig_push(struct console *c, const char *path, double size_deg,
+		      void (*saved)(struct console *c, void *ud, const char *path), void *ud);
 /* A scrollable list of LINES (the screen takes ownership of the array and its strings). */
 void console_text_push(struct console *c, const char *title, char **lines, size_t n);
 

@@ -394,11 +394,14 @@ static void draw_keys(struct console *c, const struct console_screen *s)
 		console_put(c, y, x, COLS - x, CONSOLE_PLAIN, " no");
 		return;
 	}
-	for (size_t i = 0; s && i <= s->nkeys; i++) {
-		const char *k = i < s->nkeys ? s->keys[i].key : "?";
-		const char *w = i < s->nkeys ? s->keys[i].what : "help";
+	/* "? help" always shows, at the right end; the screen's keys fill what is left. */
+	int right = COLS - 8;
+	console_put(c, y, right + 1, 1, CONSOLE_KEY, "?");
+	console_put(c, y, right + 3, 4, CONSOLE_DIM, "help");
+	for (size_t i = 0; s && i < s->nkeys; i++) {
+		const char *k = s->keys[i].key, *w = s->keys[i].what;
 		int need = text_cols(k, strlen(k)) + 1 + text_cols(w, strlen(w)) + 2;
-		if (x + need > COLS)
+		if (x + need > right)
 			break;
 		x += console_put(c, y, x, COLS - x, CONSOLE_KEY, k);
 		x += console_put(c, y, x + 1, COLS - x, CONSOLE_DIM, w) + 3;

@@ -40,17 +40,19 @@ struct setup {
 	/* the check */
 	bool checked, usable;
 	struct diag_list diags;
-	char plan_line[200], rig_line[200], epoch_line[200];
+	char plan_line[200], rig_line[200], epoch_line[200], geom_line[200];
 	int nerrors, nwarnings;
 	int scroll;
+	double size_deg;                     /* the protocol's stimulus size, for the rig editor */
 };
 
 static const struct console_key setup_keys[] = {
 	{"Up/Down", "move"},
 	{"Enter", "edit"},
 	{"Left/Right", "choose"},
-	{"g", "open the session"},
-	{"p", "all problems"},
+	{"g", "go: open the session"},
+	{"e", "edit rig"},
+	{"p", "problems"},
 	{"Esc", "back"},
 };
 
@@ -121,7 +123,7 @@ static void run_check(struct setup *s)
 	diag_init(&s->diags);
 	s->checked = true;
 	s->usable = false;
-	s->plan_line[0] = s->rig_line[0] = s->epoch_line[0] = '\0';
+	s->plan_line[0] = s->rig_line[0] = s->epoch_line[0] = s->geom_line[0] = '\0';
 	struct protocol p;
 	struct rig r;
 	struct stimlist l;
@@ -133,9 +135,8 @@ static void run_check(struct setup *s)
 	bool rig_ok = false;
 	if (s->f[ROW_RIG].len && rig_load(s->f[ROW_RIG].text, &r, &s->diags) == 0) {
 		rig_ok = true;
-		snprintf(s->rig_line, sizeof s->rig_line,
-			 "%.1f cm away, %dx%d px, %.0f Hz, %.1f px/deg", r.distance_cm,
-			 r.width_px, r.height_px, r.refresh_hz, geom_px_per_deg(&r));
+		snprintf(s->rig_line, sizeof s->rig_line, "%dx%d px, %gx%g cm, %g cm away, %g Hz",
+			 r.width_px, r.height_px, r.width_cm, r.height_cm, r.distance_cm, r.refresh_hz);
 	}
 	bool proto_ok = s->f[ROW_PROTOCOL].len &&
 			protocol_load(s->f[ROW_PROTOCOL].text, &p, &s->diags) == 0;
@@ -144,8 +145,9 @@ static void run_check(struct setup *s)
 	if (proto_ok && rig_ok) {
 		double deg_actual = 0;
 		int px = geom_deg_to_px(&r, p.size_deg, &deg_actual);
-		size_t n = strlen(s->rig_line);
-		snprintf(s->rig_line + n, sizeof s->rig_line - n, "; stimulus %.2f deg = %d px (%.2f deg)",
+		s->size_deg = p.size_deg;
+		snprintf(s->geom_line, sizeof s->geom_line,
+			 "%.2f px/deg; stimulus %.2f deg = %d px (%.3f deg)", geom_px_per_deg(&r),
 			 p.size_deg, px, deg_actual);
 	}
 	if (proto_ok && list_ok && rig_ok &&
@@ -214,14 +216,15 @@ static void setup_draw(struct console *c, void *st)
 			console_put(c, y, COLS - 10, 9, CONSOLE_DIM, "(stored)");
 		if (!f->msg[0]) {
 			const char *hint = NULL;
-			char buf[200];
+			char buf[260];
 			if (row == ROW_PROTOCOL && !row_locked(s, row) && s->nfound) {
 				snprintf(buf, sizeof buf, "Left/Right: %zu protocol%s in %s", s->nfound,
 					 s->nfound == 1 ? "" : "s",
 					 console_options(c)->protocols_dir);
 				hint = buf;
 			} else if (row == ROW_RIG && s->rig_line[0]) {
-				hint = s->rig_line;
+				snprintf(buf, sizeof buf, "%s  (e edits)", s->rig_line);
+				hint = buf;
 			} else if (row == ROW_SUBJECT) {
 				hint = "letters and digits only; never a name or initials";
 			} else if (row == ROW_MODEL) {
@@ -247,6 +250,8 @@ static void setup_draw(struct console *c, void *st)
 		console_putf(c, y, vx, w, CONSOLE_BAD, "%d problem%s to fix before a session can start",
 			     s->nerrors, s->nerrors == 1 ? "" : "s");
 	y++;
+	if (s->geom_line[0] && y <= bottom)
+		console_put(c, y++, vx, w, CONSOLE_PLAIN, s->geom_line);
 	if (s->usable && y <= bottom)
 		console_put(c, y++, vx, w, CONSOLE_DIM, s->epoch_line);
 	char line[1024];
@@ -375,6 +380,14 @@ static void show_problems(struct console *c, struct setup *s)
 	console_text_push(c, "check problems", lines, s->diags.n);
 }
 
+static void rig_saved(struct console *c, void *ud, const char *path)
+{
+	(void)c;
+	struct setup *s = ud;
+	console_field_set(&s->f[ROW_RIG], path);
+	run_check(s);
+}
+
 static bool setup_key(struct console *c, void *st, int ch)
 {
 	struct setup *s = st;
@@ -443,6 +456,10 @@ static bool setup_key(struct console *c, void *st, int ch)
 	case 'c':
 		run_check(s);
 		return true;
+	case 'e':
+	case 'E':
+		console_rig_push(c, s->f[ROW_RIG].text, s->size_deg, rig_saved, s);
+		return true;
 	case 27:
 	case 'q':
 	case 'Q':
@@ -479,7 +496,7 @@ void console_setup_push(struct console *c, const char *resume_id)
 	s->f[ROW_SEED].min = 0;
 	s->f[ROW_SEED].max = 1e19;
 	console_field_init(&s->f[ROW_MODEL], "model observer", CONSOLE_TEXT, 200,
-			   "model:shape=weibull,threshold=0.3,slope=-3,lapse=0.02,rt=550,seed=7");
+			   "model:shape=weibull,threshold=18,slope=-3,lapse=0.02,rt=550,seed=7");
 	const char *disp = getenv("DISPLAY"), *way = getenv("WAYLAND_DISPLAY");
 	bool have_display = (disp && *disp) || (way && *way);
 	s->display = have_display ? CONSOLE_FULLSCREEN : CONSOLE_HEADLESS_PACED;

@@ -18,7 +18,8 @@ expect_screen "caution: pseudonymous IDs" "Subject IDs are letters and digits on
 expect_screen "database in use is shown" "Database  $DB"
 expect_screen "rig in use is shown, and the fallback named" "demo rig: describe your own display"
 expect_screen "the way in" "Press Enter when you have read this"
-expect_screen "key line lists the keys" "Enter set up a session  s stored sessions  q leave  ? help"
+expect_screen "key line lists the screen's keys" "Enter set up a session  s stored sessions  q leave"
+expect_screen "key line ends with help" "? help"
 
 tm_keys "?"
 expect_screen "? opens the help overlay" 'Keys on "before you begin"'
