@@ -75,12 +75,16 @@ static void draw_state(struct console *c, const struct console_pres_state *st, i
 			    "Opening the session: loading the files and the observer's display ...");
 		return;
 	case CONSOLE_PRES_CRASHED: {
-		char buf[400];
+		char buf[400], how[80];
+		if (st->term_signal)
+			snprintf(how, sizeof how, "signal %d, %s", st->term_signal,
+				 strsignal(st->term_signal));
+		else
+			snprintf(how, sizeof how, "exit code %d", st->exit_code);
 		snprintf(buf, sizeof buf,
-			 "The presentation process stopped unexpectedly (signal %d, %s). Every trial "
-			 "stored before that is kept; the session is marked interrupted and can be "
-			 "resumed from the sessions list.",
-			 st->term_signal, strsignal(st->term_signal));
+			 "The presentation process stopped unexpectedly (%s). Every trial stored "
+			 "before that is kept; the session is marked interrupted and can be resumed "
+			 "from the sessions list.", how);
 		y += console_wrap(c, y, 2, w, 4, CONSOLE_BAD, buf);
 		break;
 	}

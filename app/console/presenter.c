@@ -527,8 +527,12 @@ bool console_pres_poll(struct console_pres *p)
 				mark_interrupted(p);
 			} else {
 				p->st.exit_code = WEXITSTATUS(status);
+				/* Closed cleanly; or refused with a reason; or gone without one
+				 * (a sanitizer's fault report exits instead of dying of the
+				 * signal): the last is a crash like any other. */
 				p->st.phase = p->st.closed_msg ? CONSOLE_PRES_CLOSED
-					    : CONSOLE_PRES_FAILED;
+					    : p->st.error[0] ? CONSOLE_PRES_FAILED
+							     : CONSOLE_PRES_CRASHED;
 				if (!p->st.closed_msg)
 					mark_interrupted(p);
 			}
