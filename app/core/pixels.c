@@ -2,7 +2,7 @@
  * (cmd_stimuli) on images decoded by io/image.c.
  *
  * Everything works on the 8-bit codes of the buffer. Luminance goes through a 256-entry table of
- * the sRGB transfer function, filled once. The control generator keeps one array of doubles (the
+ * the sRGB transfer function, filled per call. The control generator keeps one array of doubles (the
  * unit direction, NPIX·CHANNELS values) while it searches for the length that gives the budget. */
 #include "pixels.h"
 
@@ -30,29 +30,25 @@ double pixels_srgb_to_linear(double v)
 	return pow((v + 0.055) / 1.055, 2.4);
 }
 
-static double lin_table[256];
-static int lin_ready;
-
-static const double *lin_lut(void)
+/* Fills T with linear light for every 8-bit code (256 calls of the transfer function: cheap next
+ * to any image, and no shared state). */
+static void lin_lut(double t[256])
 {
-	if (!lin_ready) {
-		for (int i = 0; i < 256; i++)
-			lin_table[i] = pixels_srgb_to_linear(i / 255.0);
-		lin_ready = 1;
-	}
-	return lin_table;
+	for (int i = 0; i < 256; i++)
+		t[i] = pixels_srgb_to_linear(i / 255.0);
 }
 
 double pixels_luminance(uint8_t r, uint8_t g, uint8_t b)
 {
-	const double *t = lin_lut();
-	return W_R * t[r] + W_G * t[g] + W_B * t[b];
+	return W_R * pixels_srgb_to_linear(r / 255.0) + W_G * pixels_srgb_to_linear(g / 255.0) +
+	       W_B * pixels_srgb_to_linear(b / 255.0);
 }
 
 void pixels_stats(const uint8_t *rgba, size_t npix, struct pixels_stats *out)
 {
 	assert(npix > 0);
-	const double *t = lin_lut();
+	double t[256];
+	lin_lut(t);
 	double mean = 0, m2 = 0;   /* Welford's running mean and sum of squared deviations */
 	int translucent = 0, grey = 1;
 	for (size_t i = 0; i < npix; i++) {
@@ -110,7 +106,8 @@ uint64_t pixels_phash(const uint8_t *rgba, int width, int height)
 {
 	enum { N = 32, K = 8 };
 	assert(width > 0 && height > 0);
-	const double *t = lin_lut();
+	double t[256];
+	lin_lut(t);
 	double g[N][N];
 	/* Box averages of luminance over a 32×32 grid of cells (at least one pixel per cell). */
 	for (int oy = 0; oy < N; oy++) {
