@@ -49,21 +49,22 @@ void pixels_stats(const uint8_t *rgba, size_t npix, struct pixels_stats *out)
 	assert(npix > 0);
 	double t[256];
 	lin_lut(t);
-	double mean = 0, m2 = 0;   /* Welford's running mean and sum of squared deviations */
+	/* Sums of deviations from the first pixel's luminance: a shift keeps E[d²] − E[d]² accurate
+	 * for low-contrast images without a division per pixel. */
+	double shift = W_R * t[rgba[0]] + W_G * t[rgba[1]] + W_B * t[rgba[2]];
+	double s1 = 0, s2 = 0;
 	int translucent = 0, grey = 1;
 	for (size_t i = 0; i < npix; i++) {
 		const uint8_t *p = rgba + 4 * i;
-		double y = W_R * t[p[0]] + W_G * t[p[1]] + W_B * t[p[2]];
-		double d = y - mean;
-		mean += d / (double)(i + 1);
-		m2 += d * (y - mean);
-		if (p[3] != 255)
-			translucent = 1;
-		if (p[0] != p[1] || p[1] != p[2])
-			grey = 0;
+		double d = W_R * t[p[0]] + W_G * t[p[1]] + W_B * t[p[2]] - shift;
+		s1 += d;
+		s2 += d * d;
+		translucent |= p[3] != 255;
+		grey &= p[0] == p[1] && p[1] == p[2];
 	}
-	out->mean_lum = mean;
-	out->rms_contrast = sqrt(m2 / (double)npix);
+	double m = s1 / (double)npix, var = s2 / (double)npix - m * m;
+	out->mean_lum = shift + m;
+	out->rms_contrast = var > 0 ? sqrt(var) : 0;
 	out->translucent = translucent;
 	out->grey = grey;
 }

@@ -7,7 +7,8 @@ small PNG encoder (zlib + struct from the standard library, filter type 0, RFC 2
                               L-infinity norms numpy computes for every perturbed row
   stimset.py bad DIR          problem files: corrupt and truncated PNGs, a 16-bit PNG, grey and
                               grey+alpha PNGs, an RGBA PNG with transparency, a source of another size
-  stimset.py bench DIR N      N RGB images of 256x256 in DIR/cat{0..3}/ and DIR/list.csv
+  stimset.py bench DIR N      N RGB images of 256x256 in DIR/cat{0..3}/ and DIR/list.csv, in
+                              groups of a clean source and three perturbed versions
   stimset.py png FILE W H C BITS SEED   one random image
 """
 import json
@@ -173,19 +174,25 @@ def make_bad(root):
 
 
 def make_bench(root, n):
+    """N rows of 256x256 RGB images in groups of four: a clean source and three perturbed versions
+    (L2 budgets 1, 2 and 4), spread over four categories."""
     rng = np.random.default_rng(1)
     cats = ["cat0", "cat1", "cat2", "cat3"]
     for c in cats:
         os.makedirs(os.path.join(root, c), exist_ok=True)
-    base = clean_image(rng, 256, 256, 0).astype(np.int16)
-    with open(os.path.join(root, "list.csv"), "w") as f:
-        f.write("image,category\n")
-        for i in range(n):
-            c = cats[i % 4]
-            img = np.clip(base + rng.integers(-25, 26, base.shape), 0, 255).astype(np.uint8)
-            name = "%s/im%05d.png" % (c, i)
-            write_png(os.path.join(root, name), img)
-            f.write("%s,%s\n" % (name, c))
+    with open(os.path.join(root, "list.csv.tmp"), "w") as f:
+        f.write("image,category,level,source\n")
+        for g in range(0, n, 4):
+            c = cats[(g // 4) % 4]
+            src = clean_image(rng, 256, 256, g)
+            sname = "%s/im%05d.png" % (c, g)
+            write_png(os.path.join(root, sname), src)
+            f.write("%s,%s,0,\n" % (sname, c))
+            for k, lev in enumerate((1.0, 2.0, 4.0)[: min(3, n - g - 1)]):
+                name = "%s/im%05d.png" % (c, g + k + 1)
+                write_png(os.path.join(root, name), perturb(rng, src, lev))
+                f.write("%s,%s,%g,%s\n" % (name, c, lev, sname))
+    os.replace(os.path.join(root, "list.csv.tmp"), os.path.join(root, "list.csv"))
 
 
 if __name__ == "__main__":
