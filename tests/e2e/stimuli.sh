@@ -111,7 +111,7 @@ check "a corrupt image is named" grep -q "list.csv:43: unreadable: .*corrupt.png
 # --- 16-bit, grey, grey+alpha and RGBA images are reported, not refused -----------------------
 B=$WORK/bad
 printf 'image,category\nrgb.png,a\ndeep16.png,a\ngrey.png,a\ngreyalpha.png,a\nopaque_rgba.png,a\nnotes.png,a\ntruncated.png,a\nmissing.png,a\n' >"$B/list.csv"
-expect_exit "audit of odd formats exits 1 (flags), no crash" 1 "$TACHIST" stimuli audit "$B/list.csv" --json
+expect_exit "audit of odd formats exits 1 (flags), no crash" 1 "$TACHIST" stimuli audit "$B/list.csv" --json --rig "$WORK/rig.ini" --size-deg 0.5
 cp "$WORK/last.out" "$WORK/bad.json"
 check "channels, bit depth and alpha as stored" $PY - "$WORK/bad.json" <<'EOF'
 import json, sys
