@@ -12,7 +12,7 @@
  *   rt=MS                           mean reaction time in ms (default 600)
  *   seed=N                          RNG seed (default 1)
  * The guess rate γ is 1/n for n choices. On each trial the model is correct with probability P(level)
- * (the upper asymptote 1 − λ·(1 − γ) when the trial has no level); a wrong answer is drawn uniformly
+ * (the upper asymptote 1 − λ when the trial has no level); a wrong answer is drawn uniformly
  * among the n − 1 other categories. Reaction times are ex-Gaussian: Normal(μ, σ) + Exponential(τ)
  * with μ = 0.75·rt, σ = 0.1·rt, τ = 0.25·rt (so the mean is rt), floored at 100 ms. */
 #ifndef TACHIST_OBSERVER_H

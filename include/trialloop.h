@@ -53,6 +53,10 @@ struct trialloop_config {
 	/* Debug and tests: called after a frame is drawn and before its flip. May be NULL. */
 	void (*on_frame)(void *ctx, enum epoch e, int frame, bool stimulus_frame);
 	void *frame_ctx;
+	/* Benchmarks: called once per frame with the ns the loop itself spent on that frame (polling,
+	 * bookkeeping), excluding drawing, the on_frame hook and the flip. May be NULL. */
+	void (*on_work)(void *ctx, int64_t ns);
+	void *work_ctx;
 };
 
 struct trialloop_trial {

@@ -3,7 +3,7 @@
  * Slots: a fixed array of LOOKAHEAD entries, each FREE → QUEUED → (worker) DECODING → DECODED or
  * FAILED → (caller) TEXTURE, and back to FREE on release. One mutex guards the states; the worker
  * waits on a condition for queued work, the caller waits on another for a decode to finish. The
- * worker picks the queued slot with the smallest request sequence, so images decode in the order
+ * workers pick the queued slot with the smallest request sequence, so images decode in the order
  * they were asked for. */
 #include "preload.h"
 
@@ -15,6 +15,9 @@
 
 #include "diag.h"
 #include "display.h"
+
+/* Decoding threads. Two keep a two-core machine's decoder busy while the caller makes textures. */
+#define PRELOAD_WORKERS 2
 
 enum slot_state { SLOT_FREE, SLOT_QUEUED, SLOT_DECODING, SLOT_DECODED, SLOT_FAILED, SLOT_TEXTURE };
 
@@ -39,7 +42,7 @@ struct preload {
 	size_t ntex, peak;
 	SDL_mutex *mu;
 	SDL_cond *work, *done;
-	SDL_Thread *thread;
+	SDL_Thread *threads[PRELOAD_WORKERS];
 	bool quit;
 };
 
@@ -96,8 +99,10 @@ struct preload *preload_new(struct display *d, size_t lookahead, bool nearest,
 	p->mu = SDL_CreateMutex();
 	p->work = SDL_CreateCond();
 	p->done = SDL_CreateCond();
-	p->thread = SDL_CreateThread(worker, "tachist-preload", p);
-	if (!p->mu || !p->work || !p->done || !p->thread) {
+	bool ok = p->mu && p->work && p->done;
+	for (int i = 0; ok && i < PRELOAD_WORKERS; i++)
+		ok = (p->threads[i] = SDL_CreateThread(worker, "tachist-preload", p)) != NULL;
+	if (!ok) {
 		preload_destroy(p);
 		return NULL;
 	}
@@ -119,13 +124,16 @@ void preload_destroy(struct preload *p)
 {
 	if (!p)
 		return;
-	if (p->thread) {
+	if (p->mu) {
 		SDL_LockMutex(p->mu);
 		p->quit = true;
-		SDL_CondBroadcast(p->work);
+		if (p->work)
+			SDL_CondBroadcast(p->work);
 		SDL_UnlockMutex(p->mu);
-		SDL_WaitThread(p->thread, NULL);
 	}
+	for (int i = 0; i < PRELOAD_WORKERS; i++)
+		if (p->threads[i])
+			SDL_WaitThread(p->threads[i], NULL);
 	for (size_t i = 0; i < p->n; i++)
 		slot_free(p, &p->slots[i]);
 	free(p->slots);
@@ -218,14 +226,9 @@ void preload_release(struct preload *p, uint64_t id)
 {
 	SDL_LockMutex(p->mu);
 	struct slot *s = find(p, id);
-	/* A slot being decoded is left to the worker; it is freed once decoded (never: the caller
-	 * only releases what it took). Wait for it to settle to keep ownership simple. */
-	while (s && (s->st == SLOT_QUEUED || s->st == SLOT_DECODING)) {
-		if (s->st == SLOT_QUEUED) {
-			break;
-		}
+	/* A slot in the worker's hands is waited for; a queued one is simply dropped. */
+	while (s && s->st == SLOT_DECODING)
 		SDL_CondWait(p->done, p->mu);
-	}
 	if (s)
 		slot_free(p, s);
 	SDL_UnlockMutex(p->mu);

@@ -34,6 +34,7 @@ struct trialloop {
 	bool abandoned_pause, abandoned_stop;
 	bool window_open;              /* answers still count */
 	enum trialloop_status pending; /* Escape/stop that came with the first ITI flip */
+	int64_t prof_mark, prof_work;  /* on_work: start of the current own-work stretch, its sum */
 };
 
 struct trialloop *trialloop_new(const struct trialloop_config *c)
@@ -83,6 +84,8 @@ static bool stopped(const struct trialloop *tl)
 static void draw(struct trialloop *tl, enum epoch e)
 {
 	struct display *d = tl->c.disp;
+	if (tl->c.on_work && tl->prof_mark)
+		tl->prof_work += dclock_monotonic_ns() - tl->prof_mark;
 	display_clear(d);
 	bool stim = false;
 	switch (e) {
@@ -106,13 +109,22 @@ static void draw(struct trialloop *tl, enum epoch e)
 		break;
 	}
 	display_draw_marker(d, tl->c.marker_corner, tl->c.marker_px, stim);
+	if (tl->c.on_work)
+		tl->prof_mark = dclock_monotonic_ns();
 }
 
 static int64_t flip(struct trialloop *tl, enum epoch e, int frame)
 {
+	if (tl->c.on_work) {
+		tl->prof_work += dclock_monotonic_ns() - tl->prof_mark;
+		tl->c.on_work(tl->c.work_ctx, tl->prof_work);
+		tl->prof_work = 0;
+	}
 	if (tl->c.on_frame)
 		tl->c.on_frame(tl->c.frame_ctx, e, frame, e == EPOCH_STIMULUS);
 	int64_t t = dclock_flip(tl->c.clock);
+	if (tl->c.on_work)
+		tl->prof_mark = dclock_monotonic_ns();
 	if (tl->nflips == tl->capflips) {
 		tl->capflips *= 2;
 		tl->flips = xrealloc(tl->flips, tl->capflips * sizeof *tl->flips);
@@ -177,6 +189,7 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 	tl->abandoned_pause = tl->abandoned_stop = false;
 	tl->window_open = true;
 	tl->pending = TRIALLOOP_DONE;
+	tl->prof_mark = tl->prof_work = 0;   /* per-trial set-up is not per-frame work */
 	rec->response = -1;
 	rec->response_key[0] = '\0';
 	rec->correct = -1;
