@@ -3,8 +3,9 @@
  * (data points, their intervals, the fitted function and its threshold), the confusion matrix as a
  * shaded grid, and timing quality. The numbers come from the analysis module (the same tables as
  * `tachist report`) over the session's stored trials; practice trials are left out as there.
- * Fits run without the bootstrap here so the screen opens at once; `tachist report` gives the
- * intervals of the fitted parameters. */
+ * The curve's fit is a logistic made here without the bootstrap, so the screen opens at once,
+ * mirrored when accuracy falls as the level rises; `tachist report` gives the full fits with
+ * their intervals. */
 #include "console.h"
 
 #include <curses.h>
@@ -35,6 +36,8 @@ struct results {
 	size_t top;          /* accuracy: first row shown */
 	size_t series;       /* curve: which series */
 	size_t level;        /* confusion: which level */
+	struct fit_result *fits;   /* the curve's fit per series, made when first shown */
+	bool *fitted, *mirror;
 };
 
 static const struct console_key results_keys[] = {
@@ -114,8 +117,7 @@ static void analyse(struct results *r)
 	int m = r->nchoices >= 2 ? (int)r->nchoices : 2;
 	struct analysis_opts o;
 	analysis_opts_default(&o, m);
-	o.fit_opts.nboot = 0;
-	o.fit_opts.shape = PSYFN_LOGISTIC;
+	o.fit_opts.nboot = 0;   /* the curve view makes its own fit; no bootstrap wait here */
 	r->a = analysis_run(r->rows, r->ntrials, &r->asess, 1, &o);
 }
 
@@ -139,11 +141,17 @@ static void draw_accuracy(struct console *c, struct results *r, int y)
 {
 	const struct analysis *a = r->a;
 	int w = COLS - 4;
-	console_put(c, y++, 2, w, CONSOLE_DIM,
-		    "block          level    trials  correct     %     95% interval    0%        50%       100%");
-	int barx = 62, barw = COLS - barx - 3;
+	int barx = 64, barw = COLS - barx - 3;
 	if (barw > 30)
 		barw = 30;
+	console_put(c, y, 2, w, CONSOLE_DIM,
+		    "block          level    trials  correct     %     95% Wilson");
+	if (barw >= 10) {
+		console_put(c, y, barx, 2, CONSOLE_DIM, "0%");
+		console_put(c, y, barx + (barw - 1) / 2 - 1, 3, CONSOLE_DIM, "50%");
+		console_put(c, y, barx + barw - 4, 4, CONSOLE_DIM, "100%");
+	}
+	y++;
 	size_t rows = (size_t)(LINES - 3 - y);
 	if (r->top + rows > a->ncells)
 		r->top = a->ncells > rows ? a->ncells - rows : 0;
@@ -167,49 +175,92 @@ static void draw_accuracy(struct console *c, struct results *r, int y)
 
 /* ---- curve ---- */
 
+/* The curve's fit for series I, made once: a logistic over the levels, mirrored (fitted on
+ * -level) when accuracy falls as the level rises, as with noise budgets; the analysis module's
+ * fits assume accuracy rises with the level. */
+static const struct fit_result *curve_fit(struct results *r, size_t i, bool *mirrored)
+{
+	const struct analysis_series *s = &r->a->series[i];
+	if (!r->fits) {
+		r->fits = xcalloc(r->a->nseries, sizeof *r->fits);
+		r->fitted = xcalloc(r->a->nseries, sizeof *r->fitted);
+		r->mirror = xcalloc(r->a->nseries, sizeof *r->mirror);
+	}
+	if (!r->fitted[i]) {
+		r->fitted[i] = true;
+		double lo_pc = s->npts && s->pts[0].n ? (double)s->pts[0].k / s->pts[0].n : 0;
+		const struct fit_point *last = &s->pts[s->npts ? s->npts - 1 : 0];
+		double hi_pc = s->npts && last->n ? (double)last->k / last->n : 0;
+		r->mirror[i] = hi_pc < lo_pc;
+		struct fit_point *pts = xcalloc(s->npts ? s->npts : 1, sizeof *pts);
+		for (size_t k = 0; k < s->npts; k++) {
+			pts[k] = s->pts[k];
+			if (r->mirror[i])
+				pts[k].level = -pts[k].level;
+		}
+		struct fit_opts o;
+		fit_opts_default(&o, r->a->opts.m);
+		o.shape = PSYFN_LOGISTIC;
+		o.nboot = 0;
+		fit_run(pts, s->npts, &o, &r->fits[i]);
+		free(pts);
+	}
+	*mirrored = r->mirror[i];
+	return &r->fits[i];
+}
+
+static int row_of(double p, int top, int ph)
+{
+	return top + (int)lround((1.0 - p) * (ph - 1));
+}
+
 static void draw_curve(struct console *c, struct results *r, int y)
 {
 	const struct analysis *a = r->a;
 	int w = COLS - 4;
 	if (!a->nseries || !a->has_levels) {
-		console_put(c, y, 2, w, CONSOLE_DIM,
-			    "No graded levels in this session: there is no psychometric curve to draw.");
+		console_put(c, y, 2, w,
+			    CONSOLE_DIM, "No graded levels in this session: there is no psychometric "
+			    "curve to draw.");
 		return;
 	}
 	if (r->series >= a->nseries)
 		r->series = a->nseries - 1;
 	const struct analysis_series *s = &a->series[r->series];
+	bool mirrored = false;
+	const struct fit_result *fr = curve_fit(r, r->series, &mirrored);
+	double sign = mirrored ? -1 : 1;
 	console_putf(c, y++, 2, w, CONSOLE_PLAIN, "Block \"%s\"  (series %zu of %zu, Left/Right)",
 		     s->block_name ? s->block_name : "", r->series + 1, a->nseries);
-	if (s->fit.status == FIT_OK) {
-		char thr[64] = "";
-		if (s->fit.threshold_ok)
-			snprintf(thr, sizeof thr, "; threshold %.4g at %.0f%%", s->fit.threshold,
-				 100 * s->fit.pc_threshold);
+	if (fr->status == FIT_OK) {
+		char thr[80] = "";
+		if (fr->threshold_ok)
+			snprintf(thr, sizeof thr, "; %.0f%% correct at level %.4g",
+				 100 * fr->pc_threshold, sign * fr->threshold);
 		console_putf(c, y++, 2, w, CONSOLE_OK,
-			     "fit: %s, alpha %.4g, beta %.4g, lapse %.3f, deviance %.2f%s",
-			     psyfn_shape_name(s->fit.f.shape), s->fit.f.alpha, s->fit.f.beta,
-			     s->fit.f.lambda, s->fit.deviance, thr);
+			     "logistic fit%s: midpoint %.4g, spread %.4g, lapse %.3f%s",
+			     mirrored ? " (accuracy falls as the level rises)" : "",
+			     sign * fr->f.alpha, fr->f.beta, fr->f.lambda, thr);
 	} else {
-		console_putf(c, y++, 2, w, CONSOLE_WARN, "no fit: %s",
-			     s->fit.reason[0] ? s->fit.reason : "the data cannot support one");
+		console_putf(c, y++, 2, w, CONSOLE_WARN, "no fit%s: %s",
+			     mirrored ? " (tried on -level, as accuracy falls with the level)" : "",
+			     fr->reason[0] ? fr->reason : "the data cannot support one");
 	}
 	if (!s->npts)
 		return;
 	double lo = s->pts[0].level, hi = s->pts[s->npts - 1].level;
 	if (hi <= lo)
 		hi = lo + 1;
-	int ax = 8, pw = COLS - ax - 4, top = y + 1, ph = LINES - 3 - top - 2;
+	int ax = 8, pw = COLS - ax - 10, top = y + 1, ph = LINES - 3 - top - 2;
 	if (ph < 5 || pw < 20)
 		return;
 	bool u = console_utf8(c);
-	/* y axis: proportion correct 0..1 */
+	/* y axis: proportion correct, 100% at the top */
 	for (int row = 0; row < ph; row++)
 		console_put(c, top + row, ax - 1, 1, CONSOLE_DIM, u ? "\u2502" : "|");
-	for (int i = 0; i <= 2; i++) {
-		int row = top + (int)lround((1.0 - i * 0.5) * (ph - 1));
-		console_putf(c, row, 1, 6, CONSOLE_DIM, "%5.0f%%", 100.0 - i * 50);
-	}
+	for (int i = 0; i <= 2; i++)
+		console_putf(c, row_of(1.0 - 0.5 * i, top, ph), 1, 6, CONSOLE_DIM, "%5.0f%%",
+			     100.0 - 50.0 * i);
 	for (int col = 0; col < pw; col++)
 		console_put(c, top + ph, ax + col, 1, CONSOLE_DIM, u ? "\u2500" : "-");
 	console_put(c, top + ph, ax - 1, 1, CONSOLE_DIM, u ? "\u2514" : "+");
@@ -219,42 +270,38 @@ static void draw_curve(struct console *c, struct results *r, int y)
 	console_put(c, top + ph + 1, ax + pw - (int)strlen(hitxt), (int)strlen(hitxt), CONSOLE_DIM,
 		    hitxt);
 	console_put(c, top + ph + 1, ax + pw / 2 - 3, 6, CONSOLE_DIM, "level");
-	/* chance */
+	/* chance, 1/m */
 	double chance = 1.0 / (a->opts.m > 0 ? a->opts.m : 2);
-	int crow = top + (int)lround((1.0 - chance) * (ph - 1));
+	int crow = row_of(chance, top, ph);
 	for (int col = 0; col < pw; col += 2)
 		console_put(c, crow, ax + col, 1, CONSOLE_DIM, "-");
 	console_put(c, crow, ax + pw + 1, 8, CONSOLE_DIM, "chance");
-	/* fitted function */
-	if (s->fit.status == FIT_OK)
+	/* the fitted function */
+	if (fr->status == FIT_OK)
 		for (int col = 0; col < pw; col++) {
 			double x = lo + (hi - lo) * col / (pw - 1);
-			double p = psyfn_eval(&s->fit.f, x);
-			if (!isfinite(p))
-				continue;
-			int row = top + (int)lround((1.0 - p) * (ph - 1));
-			console_put(c, row, ax + col, 1, CONSOLE_OK, u ? "\u2219" : ".");
+			double p = psyfn_eval(&fr->f, sign * x);
+			if (isfinite(p))
+				console_put(c, row_of(p, top, ph), ax + col, 1, CONSOLE_OK,
+					    u ? "\u2219" : ".");
 		}
-	/* data with intervals */
+	/* data: proportion correct with its 95% Wilson interval */
 	for (size_t i = 0; i < s->npts; i++) {
 		const struct fit_point *q = &s->pts[i];
-		if (!q->n)
-			continue;
-		double l, h, pc = (double)q->k / (double)q->n;
-		if (stats_ci(STATS_CI_WILSON, q->k, q->n, 0.95, &l, &h) != 0)
+		double l, h;
+		if (!q->n || stats_ci(STATS_CI_WILSON, q->k, q->n, 0.95, &l, &h) != 0)
 			continue;
 		int col = ax + (int)lround((q->level - lo) / (hi - lo) * (pw - 1));
-		int r0 = top + (int)lround((1.0 - h) * (ph - 1));
-		int r1 = top + (int)lround((1.0 - l) * (ph - 1));
-		for (int row = r0; row <= r1; row++)
+		for (int row = row_of(h, top, ph); row <= row_of(l, top, ph); row++)
 			console_put(c, row, col, 1, CONSOLE_HEAD, u ? "\u2502" : "|");
-		console_put(c, top + (int)lround((1.0 - pc) * (ph - 1)), col, 1, CONSOLE_WARN,
+		console_put(c, row_of((double)q->k / (double)q->n, top, ph), col, 1, CONSOLE_WARN,
 			    u ? "\u25cf" : "o");
 	}
-	if (s->fit.status == FIT_OK && s->fit.threshold_ok && s->fit.threshold >= lo &&
-	    s->fit.threshold <= hi) {
-		int col = ax + (int)lround((s->fit.threshold - lo) / (hi - lo) * (pw - 1));
-		console_put(c, top + ph, col, 1, CONSOLE_WARN, u ? "\u25b2" : "^");
+	if (fr->status == FIT_OK && fr->threshold_ok) {
+		double t = sign * fr->threshold;
+		if (t >= lo && t <= hi)
+			console_put(c, top + ph, ax + (int)lround((t - lo) / (hi - lo) * (pw - 1)), 1,
+				    CONSOLE_WARN, u ? "\u25b2" : "^");
 	}
 }
 
@@ -295,10 +342,10 @@ static void draw_confusion(struct console *c, struct results *r, int y)
 			const char *g = console_shade(c, share);
 			int x = 2 + lab + (int)j * cell;
 			enum console_role role = i == j ? CONSOLE_OK : CONSOLE_WARN;
-			for (int q = 0; q < (cell == 7 ? 3 : 2); q++)
+			for (int q = 0; q < 2; q++)
 				console_put(c, y, x + q, 1, rn ? role : CONSOLE_DIM, rn ? g : " ");
 			if (cell == 7 && rn)
-				console_putf(c, y, x + 3, 3, CONSOLE_PLAIN, "%3.0f", 100 * share);
+				console_putf(c, y, x + 2, 4, CONSOLE_PLAIN, "%4.0f", 100 * share);
 		}
 	}
 	y++;
@@ -431,6 +478,9 @@ static void results_destroy(void *st)
 {
 	struct results *r = st;
 	analysis_destroy(r->a);
+	free(r->fits);
+	free(r->fitted);
+	free(r->mirror);
 	free(r->rows);
 	store_trials_free(r->trials, r->ntrials);
 	for (size_t i = 0; i < r->nchoices; i++)
