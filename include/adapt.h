@@ -63,6 +63,8 @@ struct adapt_params {
  * γ = 0.5, prior SD 0.5, grain 0.01, place = mean, quantile 0.5. start/floor/ceiling/steps/
  * max_trials are left 0 for the caller. */
 void adapt_params_default(struct adapt_params *p);
+/* "updown", "weighted", "quest" (the protocol's words). */
+const char *adapt_rule_name(enum adapt_rule r);
 
 /* Axis value of LEVEL (log10 on a log axis; NaN when level <= 0 there). */
 double adapt_axis_value(enum adapt_axis axis, double level);

@@ -66,6 +66,16 @@ void adapt_params_default(struct adapt_params *p)
 	p->ceiling = NAN;
 }
 
+const char *adapt_rule_name(enum adapt_rule r)
+{
+	switch (r) {
+	case ADAPT_UPDOWN: return "updown";
+	case ADAPT_WEIGHTED: return "weighted";
+	case ADAPT_QUEST: return "quest";
+	}
+	return "?";
+}
+
 double adapt_axis_value(enum adapt_axis axis, double level)
 {
 	if (axis == ADAPT_AXIS_LINEAR)
