@@ -19,7 +19,7 @@ static const struct cmd commands[] = {
 	{"timing", "measure the display's refresh",
 	 "tachist timing [--rig FILE] [--frames N] [--headless]\n", cmd_timing},
 	{"sessions", "list the sessions in a database",
-	 "tachist sessions [--db FILE] [--json]\n", cmd_sessions},
+	 "tachist sessions [--db FILE] [--subject ID] [--json]\n", cmd_sessions},
 	{"report", "accuracy, d', fits, confusions and timing for sessions",
 	 "tachist report [--db FILE] [--session ID | --subject ID | --all] [--json] [--plots DIR]\n",
 	 cmd_report},
