@@ -15,7 +15,7 @@ static const struct cmd commands[] = {
 	{"run", "run a session",
 	 "tachist run PROTOCOL --subject ID [--db FILE] [--rig FILE]\n"
 	 "            [--observer keyboard|model:SPEC] [--headless [--pace] [--inject-drops RATE]]\n"
-	 "            [--seed N] [--resume SESSION] [--window]\n", cmd_run},
+	 "            [--seed N] [--resume SESSION] [--window] [--screenshots DIR]\n", cmd_run},
 	{"timing", "measure the display's refresh",
 	 "tachist timing [--rig FILE] [--frames N] [--headless]\n", cmd_timing},
 	{"sessions", "list the sessions in a database",
@@ -43,7 +43,7 @@ static const struct cmd commands[] = {
 	{"merge", "pool databases from several rigs into one",
 	 "tachist merge --into FILE DB...\n", cmd_merge},
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
-	 "tachist demo [--db FILE] [--headless]\n", cmd_demo},
+	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n", cmd_demo},
 };
 
 const struct cmd *cmd_find(const char *name)
