@@ -314,6 +314,12 @@ static int precheck(const struct model *md, const struct fit_opts *o, struct fit
 				 "more correct trials than trials at level %g", md->x[i]);
 			return -1;
 		}
+	if (md->n < 2) {
+		snprintf(r->reason, sizeof r->reason,
+			 "every trial is at one level (%g): a psychometric function needs at least "
+			 "two different levels", md->x[0]);
+		return -1;
+	}
 	if (md->shape == PSYFN_WEIBULL) {
 		if (md->x[0] < 0) {
 			snprintf(r->reason, sizeof r->reason,
@@ -329,12 +335,6 @@ static int precheck(const struct model *md, const struct fit_opts *o, struct fit
 				 "the Weibull needs at least two different levels above 0");
 			return -1;
 		}
-	}
-	if (md->n < 2) {
-		snprintf(r->reason, sizeof r->reason,
-			 "every trial is at one level (%g): a psychometric function needs at least "
-			 "two different levels", md->x[0]);
-		return -1;
 	}
 	return 0;
 }
