@@ -78,10 +78,8 @@ static void print_text(const struct fit_result *r, const struct fit_opts *o, con
 	printf("%s: %s fit, m = %d (guess rate %.4g), lapse %s\n", path, psyfn_shape_name(o->shape),
 	       o->m, 1.0 / o->m, o->lapse_free ? "free in [0, 0.06]" : "fixed");
 	printf("%zu levels, %lu trials\n", r->npoints, r->ntrials);
-	if (r->status != FIT_OK) {
-		printf("no fit: %s\n", r->reason);
-		return;
-	}
+	if (r->status != FIT_OK)
+		return;   /* the reason goes to stderr */
 	bool ci = r->has_ci;
 	printf("%-24s %10.4g", "alpha (position)", r->f.alpha);
 	print_interval(r->alpha_ci, ci);

@@ -394,8 +394,10 @@ static bool ml_search(const struct model *md, double *th, double *best_val)
 	return ok;
 }
 
-/* Data the fitted function cannot speak for: flat across levels or a step between two levels. */
-static int postcheck(const struct model *md, const double *th, struct fit_result *r)
+/* Data the fitted function cannot speak for: flat across levels or a step between two levels.
+ * STALLED: the search did not converge; then a rise from F = 0.1 to 0.9 with no tested level
+ * inside it also counts as a step (the search was sharpening it without end). */
+static int postcheck(const struct model *md, const double *th, struct fit_result *r, bool stalled)
 {
 	double d0, d1;
 	size_t below = 0, above = 0;
@@ -412,9 +414,14 @@ static int postcheck(const struct model *md, const double *th, struct fit_result
 			 "the data put the threshold outside them, so no fit is reported", lo, hi);
 		return -1;
 	}
-	if (below + above == md->n) {
+	size_t inside = 0;
+	for (size_t i = 0; i < md->n; i++) {
+		double F = core(md, i, th, &d0, &d1);
+		inside += F > 0.1 && F < 0.9;
+	}
+	if (below + above == md->n || (stalled && inside == 0)) {
 		size_t j = 0;
-		while (j + 1 < md->n && core(md, j + 1, th, &d0, &d1) < 1e-3)
+		while (j + 1 < md->n && core(md, j + 1, th, &d0, &d1) < 0.5)
 			j++;
 		snprintf(r->reason, sizeof r->reason,
 			 "proportion correct jumps from chance to ceiling between levels %g and %g "
@@ -594,12 +601,15 @@ int fit_run(const struct fit_point *pts, size_t npts, const struct fit_opts *o,
 		goto out;
 	double th[3] = {0, 0, 0}, val;
 	if (!ml_search(&md, th, &val)) {
+		/* A search that runs off towards a step or a flat line is the data's doing: say so. */
+		if (postcheck(&md, th, r, true) < 0)
+			goto out;
 		r->status = FIT_NO_CONVERGENCE;
 		snprintf(r->reason, sizeof r->reason,
 			 "the maximum-likelihood search did not converge");
 		goto out;
 	}
-	if (postcheck(&md, th, r) < 0)
+	if (postcheck(&md, th, r, false) < 0)
 		goto out;
 	fill_psyfn(&md, th, &r->f);
 	r->loglik = -val;
