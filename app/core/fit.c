@@ -241,7 +241,8 @@ static void model_init(struct model *md, const struct fit_point *pts, size_t npt
 {
 	memset(md, 0, sizeof *md);
 	struct fit_point *v = xmalloc((npts ? npts : 1) * sizeof *v);
-	memcpy(v, pts, npts * sizeof *v);
+	if (npts)
+		memcpy(v, pts, npts * sizeof *v);
 	qsort(v, npts, sizeof *v, cmp_point);
 	md->x = xmalloc((npts ? npts : 1) * sizeof *md->x);
 	md->logx = xmalloc((npts ? npts : 1) * sizeof *md->logx);
