@@ -9,7 +9,10 @@
 struct image_info {
 	int width, height;
 	int channels;        /* 1 grey, 2 grey+alpha, 3 RGB, 4 RGBA, as stored in the file */
-	int bits;            /* bits per channel as stored (8 or 16 for PNG; 8 otherwise) */
+	int bits;            /* bits per channel as stored (1, 2, 4, 8 or 16 for PNG; 8 otherwise).
+	                      * Decoding always gives 8 bits: 16-bit values keep their high byte. */
+	int alpha;           /* 1 when the file can hold transparency: an alpha channel, or a PNG
+	                      * tRNS chunk (then channels stays 1 or 3) */
 	char format[8];      /* "png", "jpg", "bmp", ... */
 };
 
@@ -20,7 +23,8 @@ struct image {
 };
 
 /* Decodes PATH fully (so a truncated file is caught) and fills INFO. Returns 0, or -1 with a
- * sentence in ERR (a file that does not exist, is not an image, is corrupt or truncated). */
+ * sentence in ERR naming the path (a file that does not exist or cannot be read, is not an image,
+ * is corrupt or truncated). */
 int image_probe(const char *path, struct image_info *info, char *err, size_t errlen);
 /* Decodes PATH into IMG (RGBA8). Returns 0 or -1 with ERR. */
 int image_load(const char *path, struct image *img, struct image_info *info, char *err,

@@ -22,7 +22,26 @@ static void image_init(void)
 	}
 }
 
-/* Reads the PNG signature and IHDR: returns 0 and fills channels/bits, -1 when not a PNG. */
+/* Looks through the chunks after IHDR, up to the first IDAT, for a tRNS chunk (transparency
+ * for grey, RGB and palette images). F is positioned just after IHDR's CRC. */
+static int png_has_trns(FILE *f)
+{
+	unsigned char c[8];
+	for (int guard = 0; guard < 1000 && fread(c, 1, 8, f) == 8; guard++) {
+		unsigned long len = (unsigned long)c[0] << 24 | (unsigned long)c[1] << 16 |
+				    (unsigned long)c[2] << 8 | c[3];
+		if (!memcmp(c + 4, "tRNS", 4))
+			return 1;
+		if (!memcmp(c + 4, "IDAT", 4) || !memcmp(c + 4, "IEND", 4))
+			return 0;
+		if (len > 0x7fffffffUL || fseek(f, (long)len + 4, SEEK_CUR))
+			return 0;
+	}
+	return 0;
+}
+
+/* Reads the PNG signature and IHDR: returns 0 and fills channels, bits and alpha, -1 when not a
+ * PNG. */
 static int png_header(FILE *f, struct image_info *info)
 {
 	unsigned char h[29];
@@ -40,6 +59,9 @@ static int png_header(FILE *f, struct image_info *info)
 	case 6: info->channels = 4; break;
 	default: return -1;
 	}
+	info->alpha = info->channels == 2 || info->channels == 4;
+	if (!info->alpha && fseek(f, 33, SEEK_SET) == 0)   /* 8 signature + 25 IHDR */
+		info->alpha = png_has_trns(f);
 	return 0;
 }
 
@@ -89,6 +111,7 @@ int image_load(const char *path, struct image *img, struct image_info *info, cha
 		SDL_PixelFormat *pf = s->format;
 		info->bits = 8;
 		info->channels = pf->Amask ? 4 : (pf->BitsPerPixel == 8 && !pf->palette) ? 1 : 3;
+		info->alpha = pf->Amask != 0;
 	}
 	SDL_Surface *c = SDL_ConvertSurfaceFormat(s, SDL_PIXELFORMAT_RGBA32, 0);
 	SDL_FreeSurface(s);

@@ -1,0 +1,146 @@
+#!/usr/bin/python3
+"""stimset — invented stimulus sets for the stimuli tests and benchmark, written with numpy and a
+small PNG encoder (zlib + struct from the standard library, filter type 0, RFC 2083 / PNG spec).
+
+  stimset.py set DIR          a small set: 3 categories x 4 clean sources x budgets 0, 1.5, 4
+                              (L2, values in [0, 1]), list.csv, and expected.json with the L2 and
+                              L-infinity norms numpy computes for every perturbed row
+  stimset.py bad DIR          problem files: corrupt and truncated PNGs, a 16-bit PNG, grey and
+                              grey+alpha PNGs, an RGBA PNG with transparency, a source of another size
+  stimset.py bench DIR N      N RGB images of 256x256 in DIR/cat{0..3}/ and DIR/list.csv
+  stimset.py png FILE W H C BITS SEED   one random image
+"""
+import json
+import os
+import struct
+import sys
+import zlib
+
+import numpy as np
+
+
+def write_png(path, a, bits=8):
+    """a: (H, W) grey, (H, W, 2) grey+alpha, (H, W, 3) RGB or (H, W, 4) RGBA, integer codes."""
+    a = np.asarray(a)
+    if a.ndim == 2:
+        a = a[:, :, None]
+    h, w, c = a.shape
+    ctype = {1: 0, 2: 4, 3: 2, 4: 6}[c]
+    dt = ">u2" if bits == 16 else "u1"
+    raw = b"".join(b"\x00" + a[y].astype(dt).tobytes() for y in range(h))
+
+    def chunk(kind, data):
+        body = kind + data
+        return struct.pack(">I", len(data)) + body + struct.pack(">I", zlib.crc32(body) & 0xFFFFFFFF)
+
+    with open(path, "wb") as f:
+        f.write(b"\x89PNG\r\n\x1a\n")
+        f.write(chunk(b"IHDR", struct.pack(">IIBBBBB", w, h, bits, ctype, 0, 0, 0)))
+        f.write(chunk(b"IDAT", zlib.compress(raw, 6)))
+        f.write(chunk(b"IEND", b""))
+
+
+def clean_image(rng, w, h, cat):
+    """A smooth invented pattern per category plus texture, kept away from 0 and 255."""
+    y, x = np.mgrid[0:h, 0:w] / max(w, h)
+    base = [np.sin(6 * x) + np.cos(4 * y), np.sin(9 * (x + y)), np.cos(7 * x * y + 3 * y)][cat % 3]
+    img = np.empty((h, w, 3))
+    for c in range(3):
+        img[:, :, c] = 0.5 + 0.18 * base * (1 + 0.2 * c) + rng.normal(0, 0.03, (h, w))
+    return np.clip(np.rint(img * 255), 30, 225).astype(np.uint8)
+
+
+def perturb(rng, src, budget):
+    """Gaussian noise scaled to the L2 budget (values in [0, 1]), clipped and rounded."""
+    d = rng.normal(size=src.shape)
+    d *= budget / np.linalg.norm(d)
+    return np.clip(np.rint(src + 255 * d), 0, 255).astype(np.uint8)
+
+
+def norms(a, b):
+    d = (a.astype(np.float64) - b.astype(np.float64)) / 255.0
+    return float(np.linalg.norm(d.ravel())), float(np.abs(d).max())
+
+
+def make_set(root):
+    rng = np.random.default_rng(20261201)
+    rows, expected = [], {}
+    for ci, cat in enumerate(["kettle", "lantern", "compass"]):
+        os.makedirs(os.path.join(root, cat), exist_ok=True)
+        for k in range(4):
+            src = clean_image(rng, 64, 48, ci + 3 * k)
+            sname = "%s/%s%02d.png" % (cat, cat[:3], k)
+            write_png(os.path.join(root, sname), src)
+            rows.append((sname, cat, "0", ""))
+            for lev in (1.5, 4.0):
+                img = perturb(rng, src, lev)
+                name = "%s/%s%02d_l2_%s.png" % (cat, cat[:3], k, str(lev).replace(".", "p"))
+                write_png(os.path.join(root, name), img)
+                rows.append((name, cat, "%g" % lev, sname))
+                l2, linf = norms(img, src)
+                expected[name] = {"l2": l2, "linf": linf}
+    with open(os.path.join(root, "list.csv"), "w") as f:
+        f.write("image,category,level,source\n")
+        for r in rows:
+            f.write(",".join(r) + "\n")
+    with open(os.path.join(root, "expected.json"), "w") as f:
+        json.dump(expected, f, indent=1)
+
+
+def make_bad(root):
+    rng = np.random.default_rng(7)
+    os.makedirs(root, exist_ok=True)
+    rgb = rng.integers(40, 200, (32, 32, 3))
+    write_png(os.path.join(root, "rgb.png"), rgb)
+    write_png(os.path.join(root, "deep16.png"), rgb * 257, bits=16)
+    write_png(os.path.join(root, "grey.png"), rgb[:, :, 0])
+    write_png(os.path.join(root, "greyalpha.png"), np.dstack([rgb[:, :, 0], np.full((32, 32), 200)]))
+    alpha = np.dstack([rgb, np.full((32, 32), 255)])
+    alpha[:4, :4, 3] = 0
+    write_png(os.path.join(root, "alpha.png"), alpha)
+    write_png(os.path.join(root, "opaque_rgba.png"), np.dstack([rgb, np.full((32, 32), 255)]))
+    write_png(os.path.join(root, "small.png"), rgb[:16, :16])
+    good = open(os.path.join(root, "rgb.png"), "rb").read()
+    with open(os.path.join(root, "truncated.png"), "wb") as f:
+        f.write(good[: len(good) // 2])
+    bad = bytearray(good)
+    for i in range(60, min(len(bad) - 20, 400)):
+        bad[i] ^= 0x5A
+    with open(os.path.join(root, "corrupt.png"), "wb") as f:
+        f.write(bytes(bad))
+    with open(os.path.join(root, "notes.png"), "w") as f:
+        f.write("not an image\n")
+
+
+def make_bench(root, n):
+    rng = np.random.default_rng(1)
+    cats = ["cat0", "cat1", "cat2", "cat3"]
+    for c in cats:
+        os.makedirs(os.path.join(root, c), exist_ok=True)
+    base = clean_image(rng, 256, 256, 0).astype(np.int16)
+    with open(os.path.join(root, "list.csv"), "w") as f:
+        f.write("image,category\n")
+        for i in range(n):
+            c = cats[i % 4]
+            img = np.clip(base + rng.integers(-25, 26, base.shape), 0, 255).astype(np.uint8)
+            name = "%s/im%05d.png" % (c, i)
+            write_png(os.path.join(root, name), img)
+            f.write("%s,%s\n" % (name, c))
+
+
+if __name__ == "__main__":
+    mode = sys.argv[1]
+    if mode == "set":
+        make_set(sys.argv[2])
+    elif mode == "bad":
+        make_bad(sys.argv[2])
+    elif mode == "bench":
+        make_bench(sys.argv[2], int(sys.argv[3]))
+    elif mode == "png":
+        path, w, h, c, bits, seed = sys.argv[2], *map(int, sys.argv[3:8])
+        rng = np.random.default_rng(seed)
+        top = 65535 if bits == 16 else 255
+        shape = (h, w) if c == 1 else (h, w, c)
+        write_png(path, rng.integers(0, top + 1, shape), bits)
+    else:
+        sys.exit(__doc__)
