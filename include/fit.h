@@ -45,7 +45,7 @@ enum fit_status {
 
 struct fit_result {
 	enum fit_status status;
-	char reason[200];      /* sentence for people when status != FIT_OK */
+	char reason[320];      /* sentence for people when status != FIT_OK */
 	struct psyfn f;        /* fitted function (shape, α, β, γ, λ) */
 	double loglik;         /* binomial log-likelihood without the constant */
 	double deviance;       /* against the saturated model of the grouped points */

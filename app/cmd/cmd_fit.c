@@ -67,6 +67,8 @@ static void print_json(const struct fit_result *r, const struct fit_opts *o, enu
 
 static void print_interval(const double ci[2], bool has)
 {
+	if (!has && isnan(ci[0]))
+		return;   /* no bootstrap asked for */
 	if (has && isfinite(ci[0]) && isfinite(ci[1]))
 		printf("  [%.4g, %.4g]", ci[0], ci[1]);
 	else
@@ -81,20 +83,24 @@ static void print_text(const struct fit_result *r, const struct fit_opts *o, con
 	if (r->status != FIT_OK)
 		return;   /* the reason goes to stderr */
 	bool ci = r->has_ci;
+	double none[2] = {NAN, NAN};
+	const double *acis[4] = {r->alpha_ci, r->beta_ci, r->lambda_ci, r->threshold_ci};
+	if (o->nboot == 0)
+		acis[0] = acis[1] = acis[2] = acis[3] = none;
 	printf("%-24s %10.4g", "alpha (position)", r->f.alpha);
-	print_interval(r->alpha_ci, ci);
+	print_interval(acis[0], ci);
 	printf("\n%-24s %10.4g", "beta (slope)", r->f.beta);
-	print_interval(r->beta_ci, ci);
+	print_interval(acis[1], ci);
 	printf("\n%-24s %10.4g", "lambda (lapse)", r->f.lambda);
 	if (o->lapse_free)
-		print_interval(r->lambda_ci, ci);
+		print_interval(acis[2], ci);
 	else
 		printf("  (fixed)");
 	char lab[48];
 	snprintf(lab, sizeof lab, "threshold at pc %.3g", o->pc_threshold);
 	if (r->threshold_ok) {
 		printf("\n%-24s %10.4g", lab, r->threshold);
-		print_interval(r->threshold_ci, ci);
+		print_interval(acis[3], ci);
 	} else {
 		printf("\n%-24s  not reached: the fitted function stays below pc %.3g", lab,
 		       o->pc_threshold);

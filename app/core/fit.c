@@ -415,19 +415,23 @@ static int postcheck(const struct model *md, const double *th, struct fit_result
 			 "the data put the threshold outside them, so no fit is reported", lo, hi);
 		return -1;
 	}
+	/* Levels where the fitted F is neither at chance nor at ceiling. */
 	size_t inside = 0;
 	for (size_t i = 0; i < md->n; i++) {
 		double F = core(md, i, th, &d0, &d1);
-		inside += F > 0.1 && F < 0.9;
+		inside += F > 0.01 && F < 0.99;
 	}
-	if (below + above == md->n || (stalled && inside == 0)) {
-		size_t j = 0;
-		while (j + 1 < md->n && core(md, j + 1, th, &d0, &d1) < 0.5)
+	if (below + above == md->n || (stalled && inside <= 1)) {
+		size_t j = 0, k = md->n - 1;
+		while (j + 1 < md->n && core(md, j + 1, th, &d0, &d1) <= 0.01)
 			j++;
+		while (k > 0 && core(md, k - 1, th, &d0, &d1) >= 0.99)
+			k--;
 		snprintf(r->reason, sizeof r->reason,
-			 "proportion correct jumps from chance to ceiling between levels %g and %g "
-			 "with nothing in between: the slope cannot be estimated (test levels in "
-			 "between)", md->x[j], md->x[j + 1 < md->n ? j + 1 : j]);
+			 "proportion correct rises from chance to ceiling between levels %g and %g "
+			 "with %s in between: the slope cannot be estimated (test more levels in "
+			 "that range, or fix the lapse rate)", md->x[j], md->x[k],
+			 k > j + 1 ? "one level" : "no level");
 		return -1;
 	}
 	bool far = md->shape == PSYFN_WEIBULL ? (a > hi * 1e3) : (a > hi + 10 * (hi - lo) ||
