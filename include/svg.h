@@ -8,6 +8,7 @@
 #ifndef TACHIST_SVG_H
 #define TACHIST_SVG_H
 
+#include <stdbool.h>
 #include <stddef.h>
 #include <stdio.h>
 
@@ -20,8 +21,8 @@ void svg_psychometric(FILE *out, const struct analysis_series *se, int m, double
 /* Confusion matrix number I of A as a shaded grid with counts and row percentages. */
 void svg_confusion(FILE *out, const struct analysis *a, size_t i, const char *title);
 /* Histogram of N values V with NBINS bins (0 = automatic); MARK, when finite, draws a dashed
- * reference line (for example the nominal frame period). */
-void svg_histogram(FILE *out, const double *v, size_t n, int nbins, double mark,
+ * reference line (for example the measured frame period); LOGY puts counts on a log scale. */
+void svg_histogram(FILE *out, const double *v, size_t n, int nbins, double mark, bool logy,
 		   const char *title, const char *xlabel, const char *ylabel);
 
 /* Writes every figure of A into DIR (created when missing) and DIR/index.html. Returns the number

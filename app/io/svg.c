@@ -79,7 +79,9 @@ static double nice_step(double range, int n)
 	return (r < 1.5 ? 1 : r < 3.5 ? 2 : r < 7.5 ? 5 : 10) * p;
 }
 
-static void axes(FILE *out, const struct frame *f, const char *xlabel, const char *ylabel)
+/* Axis lines, ticks and labels; Y_TICKS false leaves the y ticks to the caller. */
+static void axes(FILE *out, const struct frame *f, const char *xlabel, const char *ylabel,
+		 bool y_ticks)
 {
 	fprintf(out, "<g stroke=\"#000000\" stroke-width=\"1\" fill=\"none\">"
 		"<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\"/>"
@@ -92,7 +94,7 @@ static void axes(FILE *out, const struct frame *f, const char *xlabel, const cha
 			"<text x=\"%.1f\" y=\"%.1f\" text-anchor=\"middle\">%g</text>\n",
 			X, f->py0, X, f->py0 + 5, X, f->py0 + 20, v);
 	}
-	for (double t = ceil(f->y0 / sy - 1e-9) * sy; t <= f->y1 + 1e-9 * sy; t += sy) {
+	for (double t = ceil(f->y0 / sy - 1e-9) * sy; y_ticks && t <= f->y1 + 1e-9 * sy; t += sy) {
 		double Y = fy(f, t), v = fabs(t) < 1e-12 * sy ? 0 : t;
 		fprintf(out, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"#000000\"/>"
 			"<text x=\"%.1f\" y=\"%.1f\" text-anchor=\"end\">%g</text>\n",
@@ -131,7 +133,7 @@ void svg_psychometric(FILE *out, const struct analysis_series *se, int m, double
 	struct frame f;
 	/* Levels that cannot be negative (budgets, contrasts) keep the axis at 0 or above. */
 	default_frame(&f, lo >= 0 && lo - pad < 0 ? 0 : lo - pad, hi + pad, 0, 1);
-	axes(out, &f, "level (units of the stimulus list)", "proportion correct");
+	axes(out, &f, "level (units of the stimulus list)", "proportion correct", true);
 	/* Chance line. */
 	fprintf(out, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"" C_GUIDE "\" "
 		"stroke-dasharray=\"2 4\"/>\n<text x=\"%.1f\" y=\"%.1f\" fill=\"#555555\" "
@@ -186,8 +188,8 @@ void svg_confusion(FILE *out, const struct analysis *a, size_t ic, const char *t
 	size_t K = a->ncat;
 	double cell = K <= 8 ? 56 : K <= 16 ? 36 : 24, left = 150, top = 70;
 	double w = left + cell * (double)K + 40, h = top + cell * (double)K + 70;
-	if (w < 360)
-		w = 360;
+	if (w < 480)
+		w = 480;
 	begin(out, w, h, title);
 	for (size_t t = 0; t < K; t++) {
 		fprintf(out, "<text x=\"%.1f\" y=\"%.1f\" text-anchor=\"end\">", left - 6,
@@ -211,13 +213,13 @@ void svg_confusion(FILE *out, const struct analysis *a, size_t ic, const char *t
 		}
 	}
 	fprintf(out, "<text x=\"%.1f\" y=\"%.1f\" text-anchor=\"middle\">chosen category "
-		"(shade: share of the row's responses)</text>\n",
+		"(shade: share of the row)</text>\n",
 		left + cell * (double)K / 2, top + cell * (double)K + 26);
 	fprintf(out, "<text transform=\"translate(16 %.1f) rotate(-90)\" text-anchor=\"middle\">true "
 		"category</text>\n</svg>\n", top + cell * (double)K / 2);
 }
 
-void svg_histogram(FILE *out, const double *v, size_t n, int nbins, double mark,
+void svg_histogram(FILE *out, const double *v, size_t n, int nbins, double mark, bool logy,
 		   const char *title, const char *xlabel, const char *ylabel)
 {
 	begin(out, W, H, title);
@@ -248,15 +250,29 @@ void svg_histogram(FILE *out, const double *v, size_t n, int nbins, double mark,
 			top = cnt[b];
 	}
 	struct frame f;
-	default_frame(&f, lo, hi, 0, (double)top * 1.05);
-	axes(out, &f, xlabel, ylabel);
+	/* On a log axis a bar of count c has height log10(1 + c), so single rare events (a dropped
+	 * frame among thousands) stay visible. */
+	double ytop = logy ? log10(1.0 + (double)top) : (double)top;
+	default_frame(&f, lo, hi, 0, ytop * 1.05);
+	if (logy) {
+		axes(out, &f, xlabel, ylabel, false);   /* decades drawn here */
+		for (double dec = 1; dec <= (double)top * 1.0001; dec *= 10) {
+			double Y = fy(&f, log10(1.0 + dec));
+			fprintf(out, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" "
+				"stroke=\"#000000\"/><text x=\"%.1f\" y=\"%.1f\" text-anchor=\"end\">%.0f"
+				"</text>\n", f.px0 - 5, Y, f.px0, Y, f.px0 - 8, Y + 4, dec);
+		}
+	} else {
+		axes(out, &f, xlabel, ylabel, true);
+	}
 	for (int b = 0; b < nbins; b++) {
 		if (!cnt[b])
 			continue;
+		double h = logy ? log10(1.0 + (double)cnt[b]) : (double)cnt[b];
 		double x0 = fx(&f, lo + b * bw), x1 = fx(&f, lo + (b + 1) * bw);
 		fprintf(out, "<rect x=\"%.1f\" y=\"%.1f\" width=\"%.1f\" height=\"%.1f\" fill=\"" C_DATA
-			"\" stroke=\"#ffffff\" stroke-width=\"0.5\"/>\n", x0, fy(&f, (double)cnt[b]),
-			x1 - x0, f.py0 - fy(&f, (double)cnt[b]));
+			"\" stroke=\"#ffffff\" stroke-width=\"0.5\"/>\n", x0, fy(&f, h), x1 - x0,
+			f.py0 - fy(&f, h));
 	}
 	if (isfinite(mark))
 		fprintf(out, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"" C_FIT
@@ -348,7 +364,7 @@ int svg_report(const struct analysis *a, const char *dir, char **err)
 	nf++;
 	if (!f)
 		goto out;
-	svg_histogram(f, a->rt_ms, a->nrt, 0, NAN, figs[nf - 1].caption,
+	svg_histogram(f, a->rt_ms, a->nrt, 0, NAN, false, figs[nf - 1].caption,
 		      "reaction time from stimulus onset (ms)", "correct trials");
 	if (close_checked(f, dir, figs[nf - 1].file, err) < 0)
 		goto out;
@@ -364,15 +380,16 @@ int svg_report(const struct analysis *a, const char *dir, char **err)
 		if (!f)
 			goto out;
 		svg_histogram(f, t->frame_ms, t->nframe_ms, 0,
-			      t->refresh_hz > 0 ? 1000.0 / t->refresh_hz : NAN, figs[nf - 1].caption,
-			      "interval between flips (ms); dashed: measured period", "frames");
+			      t->refresh_hz > 0 ? 1000.0 / t->refresh_hz : NAN, true,
+			      figs[nf - 1].caption, "interval between flips (ms); dashed: measured period",
+			      "frames (log scale)");
 		if (close_checked(f, dir, figs[nf - 1].file, err) < 0)
 			goto out;
 	}
 	f = open_in(dir, "index.html", err);
 	if (!f)
 		goto out;
-	fputs("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+	fputs("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\"/>\n"
 	      "<title>tachist report</title>\n<style>body{font-family:sans-serif;max-width:60em;"
 	      "margin:2em auto;padding:0 1em}figure{margin:2em 0}img{max-width:100%}"
 	      "figcaption{color:#333}</style>\n</head>\n<body>\n<h1>tachist report</h1>\n", f);
@@ -381,7 +398,7 @@ int svg_report(const struct analysis *a, const char *dir, char **err)
 		put_text(f, figs[i].file);
 		fputs("\" alt=\"", f);
 		put_text(f, figs[i].caption);
-		fputs("\"><figcaption>", f);
+		fputs("\"/><figcaption>", f);
 		put_text(f, figs[i].caption);
 		fputs("</figcaption></figure>\n", f);
 	}
