@@ -83,7 +83,10 @@ demo: deps $(BUILD)/tachist demo-assets
 fuzz:
 	@sh tests/fuzz/run.sh
 
+# The demo stimulus set is committed; it is drawn again only when its list is missing.
 demo-assets:
+	@[ -f assets-demo/stimuli.csv ] || { $(MAKE) --no-print-directory $(BUILD)/tools/make_demo_assets && \
+	  $(BUILD)/tools/make_demo_assets assets-demo; }
 
 clean:
 	rm -rf build
