@@ -38,8 +38,10 @@ static const struct cmd commands[] = {
 	 "tachist calc ci --k K --n N [--method wilson|exact] [--json]\n", cmd_calc},
 	{"stimuli", "import, audit and make controls for a stimulus set",
 	 "tachist stimuli import DIR --out LIST.csv [--level-from PATTERN]\n"
-	 "tachist stimuli audit LIST.csv [--rig FILE] [--json]\n"
-	 "tachist stimuli controls LIST.csv --out DIR [--seed N]\n", cmd_stimuli},
+	 "tachist stimuli audit LIST.csv [--rig FILE] [--json] [--size-deg D | --protocol FILE]\n"
+	 "                      [--units unit|255] [--norm l2|linf] [--tolerance FRAC] [--near-bits N]\n"
+	 "tachist stimuli controls LIST.csv --out DIR [--seed N] [--budget measured|level]\n"
+	 "                         [--units unit|255] [--tolerance FRAC]\n", cmd_stimuli},
 	{"merge", "pool databases from several rigs into one",
 	 "tachist merge --into FILE DB...\n", cmd_merge},
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
