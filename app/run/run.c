@@ -83,6 +83,7 @@ struct run_session {
 	double refresh_hz;
 	struct run_refresh refresh;
 	bool failed, ended, interrupted;
+	bool live;               /* the session row is ours to end (run_open succeeded) */
 	const char *screenshot_dir;
 	bool shots_done;
 	int shot_epoch_seen[EPOCH_COUNT];
@@ -439,6 +440,7 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 		s->handlers = true;
 	}
 	run_stop_flag = 0;
+	s->live = true;
 	return s;
 fail:
 	{
@@ -1133,7 +1135,7 @@ int run_close(struct run_session *s, char **err)
 	if (!s)
 		return 0;
 	int rc = 0;
-	if (s->store && s->ss.id[0] && s->have_plan && s->stored) {
+	if (s->live) {
 		enum store_status st = STORE_COMPLETE;
 		/* Complete: every planned trial stored, except in blocks deliberately skipped. */
 		size_t done = 0;
