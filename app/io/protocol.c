@@ -710,6 +710,11 @@ static void set_key(struct protocol_ctx *c, const char *key, const char *value, 
 static int on_entry(void *user, const char *section, const char *key, const char *value, int line)
 {
 	struct protocol_ctx *c = user;
+	if (!section) {   /* a broken header: skip until the next one */
+		close_instance(c);
+		c->skipping = 1;
+		return 0;
+	}
 	if (!key) {
 		open_section(c, section, line);
 		return 0;
