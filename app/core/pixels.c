@@ -2,7 +2,7 @@
  * (cmd_stimuli) on images decoded by io/image.c.
  *
  * Everything works on the 8-bit codes of the buffer. Luminance goes through a 256-entry table of
- * the sRGB transfer function, filled once. The control generator keeps one array of doubles (the
+ * the sRGB transfer function, filled per call. The control generator keeps one array of doubles (the
  * unit direction, NPIX·CHANNELS values) while it searches for the length that gives the budget. */
 #include "pixels.h"
 
@@ -30,44 +30,41 @@ double pixels_srgb_to_linear(double v)
 	return pow((v + 0.055) / 1.055, 2.4);
 }
 
-static double lin_table[256];
-static int lin_ready;
-
-static const double *lin_lut(void)
+/* Fills T with linear light for every 8-bit code (256 calls of the transfer function: cheap next
+ * to any image, and no shared state). */
+static void lin_lut(double t[256])
 {
-	if (!lin_ready) {
-		for (int i = 0; i < 256; i++)
-			lin_table[i] = pixels_srgb_to_linear(i / 255.0);
-		lin_ready = 1;
-	}
-	return lin_table;
+	for (int i = 0; i < 256; i++)
+		t[i] = pixels_srgb_to_linear(i / 255.0);
 }
 
 double pixels_luminance(uint8_t r, uint8_t g, uint8_t b)
 {
-	const double *t = lin_lut();
-	return W_R * t[r] + W_G * t[g] + W_B * t[b];
+	return W_R * pixels_srgb_to_linear(r / 255.0) + W_G * pixels_srgb_to_linear(g / 255.0) +
+	       W_B * pixels_srgb_to_linear(b / 255.0);
 }
 
 void pixels_stats(const uint8_t *rgba, size_t npix, struct pixels_stats *out)
 {
 	assert(npix > 0);
-	const double *t = lin_lut();
-	double mean = 0, m2 = 0;   /* Welford's running mean and sum of squared deviations */
+	double t[256];
+	lin_lut(t);
+	/* Sums of deviations from the first pixel's luminance: a shift keeps E[d²] − E[d]² accurate
+	 * for low-contrast images without a division per pixel. */
+	double shift = W_R * t[rgba[0]] + W_G * t[rgba[1]] + W_B * t[rgba[2]];
+	double s1 = 0, s2 = 0;
 	int translucent = 0, grey = 1;
 	for (size_t i = 0; i < npix; i++) {
 		const uint8_t *p = rgba + 4 * i;
-		double y = W_R * t[p[0]] + W_G * t[p[1]] + W_B * t[p[2]];
-		double d = y - mean;
-		mean += d / (double)(i + 1);
-		m2 += d * (y - mean);
-		if (p[3] != 255)
-			translucent = 1;
-		if (p[0] != p[1] || p[1] != p[2])
-			grey = 0;
+		double d = W_R * t[p[0]] + W_G * t[p[1]] + W_B * t[p[2]] - shift;
+		s1 += d;
+		s2 += d * d;
+		translucent |= p[3] != 255;
+		grey &= p[0] == p[1] && p[1] == p[2];
 	}
-	out->mean_lum = mean;
-	out->rms_contrast = sqrt(m2 / (double)npix);
+	double m = s1 / (double)npix, var = s2 / (double)npix - m * m;
+	out->mean_lum = shift + m;
+	out->rms_contrast = var > 0 ? sqrt(var) : 0;
 	out->translucent = translucent;
 	out->grey = grey;
 }
@@ -110,7 +107,8 @@ uint64_t pixels_phash(const uint8_t *rgba, int width, int height)
 {
 	enum { N = 32, K = 8 };
 	assert(width > 0 && height > 0);
-	const double *t = lin_lut();
+	double t[256];
+	lin_lut(t);
 	double g[N][N];
 	/* Box averages of luminance over a 32×32 grid of cells (at least one pixel per cell). */
 	for (int oy = 0; oy < N; oy++) {

@@ -7,7 +7,8 @@ small PNG encoder (zlib + struct from the standard library, filter type 0, RFC 2
                               L-infinity norms numpy computes for every perturbed row
   stimset.py bad DIR          problem files: corrupt and truncated PNGs, a 16-bit PNG, grey and
                               grey+alpha PNGs, an RGBA PNG with transparency, a source of another size
-  stimset.py bench DIR N      N RGB images of 256x256 in DIR/cat{0..3}/ and DIR/list.csv
+  stimset.py bench DIR N      N RGB images of 256x256 in DIR/cat{0..3}/ and DIR/list.csv, in
+                              groups of a clean source and three perturbed versions
   stimset.py png FILE W H C BITS SEED   one random image
 """
 import json
@@ -41,9 +42,13 @@ def write_png(path, a, bits=8):
 
 
 def clean_image(rng, w, h, cat):
-    """A smooth invented pattern per category plus texture, kept away from 0 and 255."""
+    """An invented pattern (a few random plane waves, several per category) plus texture, kept away
+    from 0 and 255; every call draws a new pattern."""
     y, x = np.mgrid[0:h, 0:w] / max(w, h)
-    base = [np.sin(6 * x) + np.cos(4 * y), np.sin(9 * (x + y)), np.cos(7 * x * y + 3 * y)][cat % 3]
+    base = np.zeros((h, w))
+    for _ in range(3):
+        fx, fy = rng.uniform(-12, 12, 2)
+        base += np.sin(fx * x + fy * y + rng.uniform(0, 6.3)) / 1.5
     img = np.empty((h, w, 3))
     for c in range(3):
         img[:, :, c] = 0.5 + 0.18 * base * (1 + 0.2 * c) + rng.normal(0, 0.03, (h, w))
@@ -55,6 +60,59 @@ def perturb(rng, src, budget):
     d = rng.normal(size=src.shape)
     d *= budget / np.linalg.norm(d)
     return np.clip(np.rint(src + 255 * d), 0, 255).astype(np.uint8)
+
+
+def read_png(path):
+    """Decodes an 8-bit non-interlaced PNG (any of the five filter types) to an (H, W, C) array."""
+    data = open(path, "rb").read()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n", path
+    pos, idat = 8, b""
+    while pos < len(data):
+        (n,) = struct.unpack(">I", data[pos:pos + 4])
+        kind, body = data[pos + 4:pos + 8], data[pos + 8:pos + 8 + n]
+        if kind == b"IHDR":
+            w, h, bits, ctype, _, _, interlace = struct.unpack(">IIBBBBB", body)
+            assert bits == 8 and interlace == 0 and ctype in (0, 2, 4, 6), path
+        elif kind == b"IDAT":
+            idat += body
+        pos += 12 + n
+    c = {0: 1, 2: 3, 4: 2, 6: 4}[ctype]
+    raw = zlib.decompress(idat)
+    stride = w * c
+    out = np.zeros((h, stride), dtype=np.int64)
+    prev = np.zeros(stride, dtype=np.int64)
+    for y in range(h):
+        ft = raw[y * (stride + 1)]
+        line = np.frombuffer(raw, np.uint8, stride, y * (stride + 1) + 1).astype(np.int64)
+        cur = np.zeros(stride, dtype=np.int64)
+        for i in range(stride):
+            a = cur[i - c] if i >= c else 0
+            b = prev[i]
+            cc = prev[i - c] if i >= c else 0
+            if ft == 0:
+                p = 0
+            elif ft == 1:
+                p = a
+            elif ft == 2:
+                p = b
+            elif ft == 3:
+                p = (a + b) // 2
+            else:
+                pa, pb, pc = abs(b - cc), abs(a - cc), abs(a + b - 2 * cc)
+                p = a if pa <= pb and pa <= pc else (b if pb <= pc else cc)
+            cur[i] = (line[i] + p) & 255
+        out[y] = cur
+        prev = cur
+    return out.reshape(h, w, c).astype(np.uint8)
+
+
+def lum_rms(a):
+    """Mean relative luminance and RMS contrast (population SD of luminance) of RGB codes:
+    IEC 61966-2-1 transfer function, Rec. 709 weights."""
+    v = a[:, :, :3].astype(np.float64) / 255.0
+    lin = np.where(v <= 0.04045, v / 12.92, ((v + 0.055) / 1.055) ** 2.4)
+    y = lin @ np.array([0.2126, 0.7152, 0.0722])
+    return float(y.mean()), float(y.std())
 
 
 def norms(a, b):
@@ -72,13 +130,16 @@ def make_set(root):
             sname = "%s/%s%02d.png" % (cat, cat[:3], k)
             write_png(os.path.join(root, sname), src)
             rows.append((sname, cat, "0", ""))
+            lum, rms = lum_rms(src)
+            expected[sname] = {"lum": lum, "rms": rms}
             for lev in (1.5, 4.0):
                 img = perturb(rng, src, lev)
                 name = "%s/%s%02d_l2_%s.png" % (cat, cat[:3], k, str(lev).replace(".", "p"))
                 write_png(os.path.join(root, name), img)
                 rows.append((name, cat, "%g" % lev, sname))
                 l2, linf = norms(img, src)
-                expected[name] = {"l2": l2, "linf": linf}
+                lum, rms = lum_rms(img)
+                expected[name] = {"l2": l2, "linf": linf, "lum": lum, "rms": rms}
     with open(os.path.join(root, "list.csv"), "w") as f:
         f.write("image,category,level,source\n")
         for r in rows:
@@ -113,19 +174,25 @@ def make_bad(root):
 
 
 def make_bench(root, n):
+    """N rows of 256x256 RGB images in groups of four: a clean source and three perturbed versions
+    (L2 budgets 1, 2 and 4), spread over four categories."""
     rng = np.random.default_rng(1)
     cats = ["cat0", "cat1", "cat2", "cat3"]
     for c in cats:
         os.makedirs(os.path.join(root, c), exist_ok=True)
-    base = clean_image(rng, 256, 256, 0).astype(np.int16)
-    with open(os.path.join(root, "list.csv"), "w") as f:
-        f.write("image,category\n")
-        for i in range(n):
-            c = cats[i % 4]
-            img = np.clip(base + rng.integers(-25, 26, base.shape), 0, 255).astype(np.uint8)
-            name = "%s/im%05d.png" % (c, i)
-            write_png(os.path.join(root, name), img)
-            f.write("%s,%s\n" % (name, c))
+    with open(os.path.join(root, "list.csv.tmp"), "w") as f:
+        f.write("image,category,level,source\n")
+        for g in range(0, n, 4):
+            c = cats[(g // 4) % 4]
+            src = clean_image(rng, 256, 256, g)
+            sname = "%s/im%05d.png" % (c, g)
+            write_png(os.path.join(root, sname), src)
+            f.write("%s,%s,0,\n" % (sname, c))
+            for k, lev in enumerate((1.0, 2.0, 4.0)[: min(3, n - g - 1)]):
+                name = "%s/im%05d.png" % (c, g + k + 1)
+                write_png(os.path.join(root, name), perturb(rng, src, lev))
+                f.write("%s,%s,%g,%s\n" % (name, c, lev, sname))
+    os.replace(os.path.join(root, "list.csv.tmp"), os.path.join(root, "list.csv"))
 
 
 if __name__ == "__main__":
