@@ -112,7 +112,6 @@ static char *next_line(char *str, int num, void *stream)
 		s++;
 		n--;
 	}
-	check_line(r, s, n);
 	size_t max = (size_t)num - 2;
 	if (max > INIFILE_MAX_LINE)
 		max = INIFILE_MAX_LINE;
@@ -121,6 +120,8 @@ static char *next_line(char *str, int num, void *stream)
 			 "line is longer than %d characters", INIFILE_MAX_LINE);
 		r->bad = 1;
 		n = 0;   /* hand inih an empty line instead */
+	} else {
+		check_line(r, s, n);
 	}
 	memcpy(str, s, n);
 	str[n] = '\n';

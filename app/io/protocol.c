@@ -553,7 +553,8 @@ static void block_finish(struct protocol_ctx *c)
 	}
 }
 
-static const char *const plain_required[] = {"experiment", "choices", "timing", "display"};
+/* [experiment], [choices], [timing] and [display]: the first rows of sections[]. */
+#define NREQUIRED_PLAIN 4
 
 static void close_instance(struct protocol_ctx *c)
 {
@@ -777,7 +778,7 @@ int protocol_parse(const char *path, const char *text, struct protocol *p, struc
 	inifile_parse(path, text, on_entry, &c, d);
 	close_instance(&c);
 	/* The plain kinds every protocol needs are the first rows of sections[]. */
-	for (size_t k = 0; k < sizeof plain_required / sizeof plain_required[0]; k++)
+	for (size_t k = 0; k < NREQUIRED_PLAIN; k++)
 		if (!c.plain_line[k]) {
 			const struct protocol_section *s = sections[k];
 			char need[256] = "";
