@@ -8,7 +8,7 @@ CFLAGS   ?= -O2 -g
 WARN     := -std=c11 -Wall -Wextra -Wpedantic -Werror
 PKGS     := sdl2 SDL2_image sqlite3 inih libcjson gsl ncursesw
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
-PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lcsv -lm
+PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lSDL2_test -lcsv -lm
 CPPFLAGS += -Iinclude -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE
 Q        ?= @
 ALL_CFLAGS = $(WARN) $(CPPFLAGS) $(PKG_CFLAGS) $(CFLAGS) -MMD -MP

@@ -31,6 +31,13 @@ int cmd_stimuli(int argc, char **argv);
 int cmd_merge(int argc, char **argv);
 int cmd_demo(int argc, char **argv);
 
+/* Shared by `run` and `demo` (app/cmd/cmd_run.c): parse the session options from ARGV[FIRST..]
+ * into O (*RIG_ARG gets --rig), returning 0 or -1 after a message; run one session and print its
+ * block summaries, returning the exit code. */
+struct run_options;
+int cmd_run_options(int argc, char **argv, int first, struct run_options *o, char **rig_arg);
+int cmd_run_session(const struct run_options *o);
+
 /* The table row for NAME, or NULL. */
 const struct cmd *cmd_find(const char *name);
 /* True when ARGV holds --help or -h; the caller then prints its usage and returns 0. */

@@ -91,6 +91,9 @@ struct run_trial_brief {
  * session_*). Valid only during the call. */
 struct run_snapshot {
 	enum run_state state;
+	bool paused_by_observer;      /* PAUSED: the observer pressed Escape and chooses from the pause
+				       * menu; returning RUN_CMD_END still ends the session, CONTINUE
+				       * leaves the choice to the observer */
 	int block;                    /* plan block index */
 	const char *block_name;
 	bool practice;

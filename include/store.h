@@ -74,9 +74,9 @@ bool store_subject_valid(const char *subject);
 /* Fills a fresh UUID v4 (RFC 4122 section 4.4) from /dev/urandom. Returns 0 or -1. */
 int store_uuid4(char out[37]);
 
-/* Copies into SS what the protocol, list and rig say (names, paths, texts, the list's hash,
- * screen geometry). Any argument may be NULL. Strings are duplicated; SS owns them. The
- * protocol's SHA-256, seed, subject, timing mode and observer stay the caller's to set. */
+/* Copies into SS what the protocol, list and rig say (names, paths, texts, the SHA-256 of the
+ * protocol text, the list's hash, screen geometry). Any argument may be NULL. Strings are
+ * duplicated; SS owns them. Seed, subject, timing mode and observer stay the caller's to set. */
 void store_session_describe(struct store_session *ss, const struct protocol *p,
 			    const struct stimlist *l, const struct rig *r);
 

@@ -813,6 +813,10 @@ static void store_testDescribe(void **state)
 	store_session_describe(&ss, &p, &l, NULL);
 	assert_string_equal(ss.protocol_name, "unitproto");
 	assert_string_equal(ss.protocol_text, p.text);
+	/* Digest computed with: printf '[display]\nsize = 4\n' | sha256sum (GNU coreutils). */
+	char *want = sh_line("printf '[display]\\nsize = 4\\n' | sha256sum | cut -c1-64");
+	assert_string_equal(ss.protocol_sha256, want);
+	free(want);
 	assert_string_equal(ss.stimuli_path, "/nowhere/list.csv");
 	assert_int_equal(strlen(ss.stimuli_sha256), 64);
 	assert_true(ss.stim_deg == 4);

@@ -1,9 +1,119 @@
-/* cmd_export — `tachist export`: placeholder until its issue lands (see DEVELOPERS.md). */
+/* cmd_export — `tachist export`: trial tables (CSV, TSV, JSON) or a BIDS folder from a database.
+ * A table goes to a temporary file beside --out and is renamed into place only when complete, so
+ * a failed export never leaves half a table under the requested name. `--out -` writes a table
+ * to stdout. */
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
 #include "cmd.h"
+#include "export.h"
+#include "store.h"
+
+static int usage(const char *msg)
+{
+	fprintf(stderr, "tachist export: %s\n", msg);
+	cmd_print_usage("export", stderr);
+	return EXIT_USAGE;
+}
+
+static int fail(char *err)
+{
+	fprintf(stderr, "tachist export: %s\n", err);
+	free(err);
+	return EXIT_PROBLEMS;
+}
 
 int cmd_export(int argc, char **argv)
 {
-	(void)argc;
-	fprintf(stderr, "tachist: '%s' is not built yet\n", argv[0]);
-	return EXIT_PROBLEMS;
+	const char *db = "tachist.db", *format = NULL, *session = NULL, *subject = NULL;
+	const char *out = NULL;
+	for (int i = 1; i < argc; i++) {
+		const char *a = argv[i];
+		bool has = i + 1 < argc;
+		if (!strcmp(a, "--db") && has)
+			db = argv[++i];
+		else if (!strcmp(a, "--format") && has)
+			format = argv[++i];
+		else if (!strcmp(a, "--session") && has)
+			session = argv[++i];
+		else if (!strcmp(a, "--subject") && has)
+			subject = argv[++i];
+		else if (!strcmp(a, "--out") && has)
+			out = argv[++i];
+		else {
+			char *m = xasprintf("unexpected argument '%s'", a);
+			int rc = usage(m);
+			free(m);
+			return rc;
+		}
+	}
+	enum export_format f;
+	if (!format || export_format_parse(format, &f))
+		return usage("--format must be csv, tsv, json or bids");
+	if (!out)
+		return usage("--out PATH is required");
+	if (session && subject)
+		return usage("choose --session or --subject, not both");
+	if (f == EXPORT_BIDS && !strcmp(out, "-"))
+		return usage("bids writes a folder: give --out DIR");
+	if (subject && !store_subject_valid(subject))
+		return usage("--subject takes letters and digits only");
+	if (access(db, F_OK)) {
+		fprintf(stderr, "tachist export: no database at %s\n", db);
+		return EXIT_PROBLEMS;
+	}
+	struct store *s;
+	char *err = NULL;
+	if (store_open(db, &s, &err))
+		return fail(err);
+	struct export_stats st;
+	int rc;
+	if (f == EXPORT_BIDS) {
+		rc = export_bids(s, session, subject, out, &st, &err);
+		store_close(s);
+		if (rc)
+			return fail(err);
+		fprintf(stderr, "tachist export: %zu trials of %zu sessions as BIDS in %s (%zu files)\n",
+			st.rows, st.sessions, out, st.files);
+		return EXIT_OK;
+	}
+	FILE *fo = stdout;
+	char *tmp = NULL;
+	if (strcmp(out, "-")) {
+		tmp = xasprintf("%s.partial", out);
+		fo = fopen(tmp, "w");
+		if (!fo) {
+			store_close(s);
+			fprintf(stderr, "tachist export: %s: cannot write\n", tmp);
+			free(tmp);
+			return EXIT_PROBLEMS;
+		}
+	}
+	static char big[1 << 16];
+	setvbuf(fo, big, _IOFBF, sizeof big);
+	rc = export_table(s, f, session, subject, fo, &st, &err);
+	store_close(s);
+	if (tmp) {
+		if (fclose(fo) && !rc) {
+			rc = -1;
+			err = xasprintf("%s: write failed", tmp);
+		}
+		if (!rc && rename(tmp, out)) {
+			rc = -1;
+			err = xasprintf("%s: cannot rename into place", out);
+		}
+		if (rc)
+			unlink(tmp);
+		free(tmp);
+	} else {
+		fflush(stdout);
+		setvbuf(stdout, NULL, _IOLBF, 0);
+	}
+	if (rc)
+		return fail(err);
+	if (strcmp(out, "-"))
+		fprintf(stderr, "tachist export: %zu trials of %zu sessions to %s\n", st.rows,
+			st.sessions, out);
+	return EXIT_OK;
 }

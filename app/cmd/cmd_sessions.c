@@ -1,9 +1,120 @@
-/* cmd_sessions — `tachist sessions`: placeholder until its issue lands (see DEVELOPERS.md). */
+/* cmd_sessions — `tachist sessions [--db FILE] [--json]`: the sessions in a database with their
+ * status and trial counts, so interrupted ones can be found and resumed. Reads only. */
+#include <cJSON.h>
+#include <inttypes.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
 #include "cmd.h"
+#include "store.h"
+
+static cJSON *session_json(const struct store_session *ss)
+{
+	cJSON *o = cJSON_CreateObject();
+	cJSON_AddStringToObject(o, "id", ss->id);
+	cJSON_AddStringToObject(o, "subject", ss->subject ? ss->subject : "");
+	if (ss->protocol_name)
+		cJSON_AddStringToObject(o, "protocol", ss->protocol_name);
+	else
+		cJSON_AddNullToObject(o, "protocol");
+	cJSON_AddStringToObject(o, "status", store_status_name(ss->status));
+	cJSON_AddNumberToObject(o, "trials", (double)ss->ntrials);
+	cJSON_AddStringToObject(o, "started_utc", ss->started_utc ? ss->started_utc : "");
+	if (ss->ended_utc)
+		cJSON_AddStringToObject(o, "ended_utc", ss->ended_utc);
+	else
+		cJSON_AddNullToObject(o, "ended_utc");
+	char seed[24];
+	snprintf(seed, sizeof seed, "%" PRIu64, ss->seed);
+	cJSON_AddRawToObject(o, "seed", seed);
+	if (ss->timing_mode)
+		cJSON_AddStringToObject(o, "timing_mode", ss->timing_mode);
+	else
+		cJSON_AddNullToObject(o, "timing_mode");
+	if (ss->refresh_hz > 0)
+		cJSON_AddNumberToObject(o, "refresh_hz", ss->refresh_hz);
+	else
+		cJSON_AddNullToObject(o, "refresh_hz");
+	if (ss->observer)
+		cJSON_AddStringToObject(o, "observer", ss->observer);
+	else
+		cJSON_AddNullToObject(o, "observer");
+	cJSON_AddStringToObject(o, "version", ss->version ? ss->version : "");
+	return o;
+}
 
 int cmd_sessions(int argc, char **argv)
 {
-	(void)argc;
-	fprintf(stderr, "tachist: '%s' is not built yet\n", argv[0]);
-	return EXIT_PROBLEMS;
+	const char *db = "tachist.db", *subject = NULL;
+	bool json = false;
+	for (int i = 1; i < argc; i++) {
+		if (!strcmp(argv[i], "--db") && i + 1 < argc)
+			db = argv[++i];
+		else if (!strcmp(argv[i], "--subject") && i + 1 < argc)
+			subject = argv[++i];
+		else if (!strcmp(argv[i], "--json"))
+			json = true;
+		else {
+			fprintf(stderr, "tachist sessions: unexpected argument '%s'\n", argv[i]);
+			cmd_print_usage("sessions", stderr);
+			return EXIT_USAGE;
+		}
+	}
+	if (access(db, F_OK)) {
+		fprintf(stderr, "tachist sessions: no database at %s\n", db);
+		return EXIT_PROBLEMS;
+	}
+	struct store *s;
+	char *err = NULL;
+	if (store_open(db, &s, &err)) {
+		fprintf(stderr, "tachist sessions: %s\n", err);
+		free(err);
+		return EXIT_PROBLEMS;
+	}
+	struct store_session *v;
+	size_t n;
+	if (store_sessions_list(s, subject, &v, &n, &err)) {
+		fprintf(stderr, "tachist sessions: %s\n", err);
+		free(err);
+		store_close(s);
+		return EXIT_PROBLEMS;
+	}
+	if (json) {
+		cJSON *doc = cJSON_CreateObject();
+		cJSON_AddStringToObject(doc, "db", db);
+		cJSON *a = cJSON_AddArrayToObject(doc, "sessions");
+		for (size_t i = 0; i < n; i++)
+			cJSON_AddItemToArray(a, session_json(&v[i]));
+		char *t = cJSON_Print(doc);
+		printf("%s\n", t);
+		cJSON_free(t);
+		cJSON_Delete(doc);
+	} else if (n == 0) {
+		printf("no sessions in %s\n", db);
+	} else {
+		printf("%-8s  %-12s  %-16s  %-11s  %6s  %s\n", "session", "subject", "protocol",
+		       "status", "trials", "started (UTC)");
+		size_t interrupted = 0;
+		for (size_t i = 0; i < n; i++) {
+			const struct store_session *ss = &v[i];
+			char started[20] = "";
+			if (ss->started_utc) {
+				snprintf(started, sizeof started, "%.19s", ss->started_utc);
+				char *t = strchr(started, 'T');
+				if (t)
+					*t = ' ';
+			}
+			printf("%.8s  %-12s  %-16.16s  %-11s  %6zu  %s\n", ss->id, ss->subject,
+			       ss->protocol_name ? ss->protocol_name : "-",
+			       store_status_name(ss->status), ss->ntrials, started);
+			interrupted += ss->status == STORE_INTERRUPTED;
+		}
+		if (interrupted)
+			printf("\n%zu interrupted: continue one with tachist run PROTOCOL "
+			       "--resume SESSION\n", interrupted);
+	}
+	store_sessions_free(v, n);
+	store_close(s);
+	return EXIT_OK;
 }

@@ -26,6 +26,7 @@
 #include "geom.h"
 #include "image.h"
 #include "pixels.h"
+#include "protocol.h"
 #include "rig.h"
 #include "stimlist.h"
 
@@ -1065,8 +1066,8 @@ static void print_text(const struct audit *a, const char *list_path)
 
 static int stimuli_audit(int argc, char **argv)
 {
-	const char *list = NULL, *rigp = NULL;
-	int json = 0;
+	const char *list = NULL, *rigp = NULL, *protop = NULL;
+	int json = 0, have_size = 0;
 	struct audit a = {0};
 	a.units = 1.0;
 	a.tol = DEFAULT_AUDIT_TOL;
@@ -1084,6 +1085,10 @@ static int stimuli_audit(int argc, char **argv)
 		} else if (!strcmp(o, "--size-deg") && v) {
 			if (cmd_parse_double(v, &a.size_deg) || a.size_deg <= 0 || a.size_deg >= 180)
 				return usage_error("--size-deg wants degrees in (0, 180), not '%s'", v);
+			have_size = 1;
+			i++;
+		} else if (!strcmp(o, "--protocol") && v) {
+			protop = v;
 			i++;
 		} else if (!strcmp(o, "--units") && v) {
 			if (parse_units(v, &a.units))
@@ -1113,11 +1118,28 @@ static int stimuli_audit(int argc, char **argv)
 	}
 	if (!list)
 		return usage_error("audit needs a stimulus list%s", "");
+	if (protop && have_size)
+		return usage_error("give --size-deg or --protocol, not both%s", "");
 
 	struct diag_list d;
 	diag_init(&d);
+	/* With a protocol: its stimulus size, and the list's categories checked against its choices. */
+	struct protocol proto;
+	memset(&proto, 0, sizeof proto);
+	if (protop) {
+		if (protocol_load(protop, &proto, &d)) {
+			cmd_print_diags(&d, stderr);
+			diag_clear(&d);
+			protocol_clear(&proto);
+			return EXIT_PROBLEMS;
+		}
+		a.size_deg = proto.size_deg;
+		diag_clear(&d);
+	}
 	struct stimlist l = {0};
-	if (stimlist_load(list, NULL, &l, &d)) {
+	int lrc = stimlist_load(list, protop ? &proto : NULL, &l, &d);
+	protocol_clear(&proto);
+	if (lrc) {
 		cmd_print_diags(&d, stderr);
 		diag_clear(&d);
 		stimlist_clear(&l);

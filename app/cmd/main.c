@@ -15,11 +15,11 @@ static const struct cmd commands[] = {
 	{"run", "run a session",
 	 "tachist run PROTOCOL --subject ID [--db FILE] [--rig FILE]\n"
 	 "            [--observer keyboard|model:SPEC] [--headless [--pace] [--inject-drops RATE]]\n"
-	 "            [--seed N] [--resume SESSION] [--window]\n", cmd_run},
+	 "            [--seed N] [--resume SESSION] [--window] [--screenshots DIR]\n", cmd_run},
 	{"timing", "measure the display's refresh",
 	 "tachist timing [--rig FILE] [--frames N] [--headless]\n", cmd_timing},
 	{"sessions", "list the sessions in a database",
-	 "tachist sessions [--db FILE] [--json]\n", cmd_sessions},
+	 "tachist sessions [--db FILE] [--subject ID] [--json]\n", cmd_sessions},
 	{"report", "accuracy, d', fits, confusions and timing for sessions",
 	 "tachist report [--db FILE] [--session ID | --subject ID | --all] [--json] [--plots DIR]\n",
 	 cmd_report},
@@ -38,12 +38,14 @@ static const struct cmd commands[] = {
 	 "tachist calc ci --k K --n N [--method wilson|exact] [--json]\n", cmd_calc},
 	{"stimuli", "import, audit and make controls for a stimulus set",
 	 "tachist stimuli import DIR --out LIST.csv [--level-from PATTERN]\n"
-	 "tachist stimuli audit LIST.csv [--rig FILE] [--json]\n"
-	 "tachist stimuli controls LIST.csv --out DIR [--seed N]\n", cmd_stimuli},
+	 "tachist stimuli audit LIST.csv [--rig FILE] [--json] [--size-deg D | --protocol FILE]\n"
+	 "                      [--units unit|255] [--norm l2|linf] [--tolerance FRAC] [--near-bits N]\n"
+	 "tachist stimuli controls LIST.csv --out DIR [--seed N] [--budget measured|level]\n"
+	 "                         [--units unit|255] [--tolerance FRAC]\n", cmd_stimuli},
 	{"merge", "pool databases from several rigs into one",
 	 "tachist merge --into FILE DB...\n", cmd_merge},
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
-	 "tachist demo [--db FILE] [--headless]\n", cmd_demo},
+	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n", cmd_demo},
 };
 
 const struct cmd *cmd_find(const char *name)

@@ -32,6 +32,7 @@
 #include "diag.h"
 #include "protocol.h"
 #include "rig.h"
+#include "sha256.h"
 #include "stimlist.h"
 #include "store.h"
 #include "version.h"
@@ -46,7 +47,47 @@ struct store {
 	int busy_ms;
 	sqlite3_stmt *st[ST_COUNT];
 	char meta_done[37];   /* session whose choices/label names this connection has written */
+	char *reserve;        /* slack file beside the database, freed when the disk fills */
 };
+
+/* Bytes of slack kept beside a database opened for writing: when the disk fills, deleting it
+ * leaves room to mark the session aborted (a status update needs a page or two in the WAL and
+ * perhaps a larger WAL index). */
+enum { RESERVE_BYTES = 128 * 1024 };
+
+static void reserve_make(struct store *s)
+{
+	char *path = xasprintf("%s-reserve", s->path);
+	int fd = open(path, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0644);
+	if (fd < 0) {
+		free(path);   /* exists already (another connection keeps it) or cannot be made */
+		return;
+	}
+	static const char zero[4096];
+	size_t done = 0;
+	while (done < RESERVE_BYTES) {
+		ssize_t w = write(fd, zero, sizeof zero);
+		if (w <= 0)
+			break;
+		done += (size_t)w;
+	}
+	close(fd);
+	if (done < RESERVE_BYTES) {
+		unlink(path);
+		free(path);
+		return;
+	}
+	s->reserve = path;
+}
+
+static void reserve_release(struct store *s)
+{
+	if (!s->reserve)
+		return;
+	unlink(s->reserve);
+	free(s->reserve);
+	s->reserve = NULL;
+}
 
 /* ---- errors ---- */
 
@@ -71,6 +112,7 @@ static int db_fail(struct store *s, char **err, const char *what)
 	const char *msg = sqlite3_errmsg(s->db);
 	switch (rc & 0xff) {
 	case SQLITE_FULL:
+		reserve_release(s);
 		set_err(err, "%s: %s: the disk is full or the database reached its size limit (%s)",
 			s->path, what, msg);
 		break;
@@ -396,14 +438,41 @@ fail:
 	return -1;
 }
 
-/* Opens PATH without touching its schema; READONLY opens it for reading only. */
-static int open_raw(const char *path, bool readonly, struct store **out, char **err)
+enum open_mode { OPEN_WRITE, OPEN_READ, OPEN_IMMUTABLE };
+
+/* "file:" URI of PATH with immutable=1, every byte outside [A-Za-z0-9/._~-] percent-encoded
+ * (RFC 3986 section 2.1). */
+static char *immutable_uri(const char *path)
+{
+	char *u = xmalloc(strlen(path) * 3 + 32), *q = u;
+	q += sprintf(q, "file:");
+	for (const unsigned char *c = (const unsigned char *)path; *c; c++) {
+		if ((*c >= 'a' && *c <= 'z') || (*c >= 'A' && *c <= 'Z') || (*c >= '0' && *c <= '9') ||
+		    strchr("/._~-", *c))
+			*q++ = (char)*c;
+		else
+			q += sprintf(q, "%%%02X", *c);
+	}
+	sprintf(q, "?immutable=1");
+	return u;
+}
+
+/* Opens PATH without touching its schema. */
+static int open_raw(const char *path, enum open_mode mode, struct store **out, char **err)
 {
 	struct store *s = xcalloc(1, sizeof *s);
 	s->path = xstrdup(path);
 	s->busy_ms = 5000;
-	int flags = readonly ? SQLITE_OPEN_READONLY : SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE;
-	if (sqlite3_open_v2(path, &s->db, flags | SQLITE_OPEN_NOMUTEX, NULL) != SQLITE_OK) {
+	int flags = mode == OPEN_WRITE ? SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE
+				       : SQLITE_OPEN_READONLY;
+	char *uri = NULL;
+	if (mode == OPEN_IMMUTABLE) {
+		uri = immutable_uri(path);
+		flags |= SQLITE_OPEN_URI;
+	}
+	int rc = sqlite3_open_v2(uri ? uri : path, &s->db, flags | SQLITE_OPEN_NOMUTEX, NULL);
+	free(uri);
+	if (rc != SQLITE_OK) {
 		if (s->db)
 			db_fail(s, err, "opening");
 		else
@@ -417,17 +486,84 @@ static int open_raw(const char *path, bool readonly, struct store **out, char **
 	return 0;
 }
 
+/* True when a database we cannot write also cannot be read normally because its WAL index
+ * cannot be made (a read-only folder) and nothing waits in its WAL: it is then safe to read it
+ * as immutable. */
+static bool immutable_ok(struct store *s)
+{
+	int code = sqlite3_extended_errcode(s->db) & 0xff;
+	if (code != SQLITE_READONLY && code != SQLITE_CANTOPEN)
+		return false;
+	if (access(s->path, W_OK) == 0)
+		return false;
+	char *wal = xasprintf("%s-wal", s->path);
+	struct stat st;
+	bool empty = stat(wal, &st) != 0 || st.st_size == 0;
+	free(wal);
+	return empty;
+}
+
+/* Opens PATH for reading only, falling back to immutable reading in a read-only folder. */
+static int open_read(const char *path, struct store **out, int *version, bool *immutable,
+		     char **err)
+{
+	struct store *s;
+	if (immutable)
+		*immutable = false;
+	if (open_raw(path, OPEN_READ, &s, err))
+		return -1;
+	char *first = NULL;
+	if (user_version(s, version, &first)) {
+		if (!immutable_ok(s)) {
+			if (err) {
+				free(*err);
+				*err = first;
+			} else {
+				free(first);
+			}
+			store_close(s);
+			return -1;
+		}
+		free(first);
+		store_close(s);
+		if (open_raw(path, OPEN_IMMUTABLE, &s, err))
+			return -1;
+		if (user_version(s, version, err)) {
+			store_close(s);
+			return -1;
+		}
+		if (immutable)
+			*immutable = true;
+	}
+	*out = s;
+	return 0;
+}
+
 int store_open(const char *path, struct store **out, char **err)
 {
 	assert(path && out);
 	*out = NULL;
 	struct store *s;
-	if (open_raw(path, false, &s, err))
+	if (open_raw(path, OPEN_WRITE, &s, err))
 		return -1;
 	int v;
 	/* Reading the version first finds a file that is not a database. */
-	if (user_version(s, &v, err))
-		goto fail;
+	char *first = NULL;
+	if (user_version(s, &v, &first)) {
+		if (!immutable_ok(s)) {
+			if (err) {
+				free(*err);
+				*err = first;
+			} else {
+				free(first);
+			}
+			goto fail;
+		}
+		free(first);
+		store_close(s);
+		if (open_read(path, &s, &v, NULL, err))
+			return -1;
+	}
 	if (exec(s, "PRAGMA foreign_keys = ON", err, "setting up"))
 		goto fail;
 	if (sqlite3_db_readonly(s->db, "main") != 1) {
@@ -445,6 +581,8 @@ int store_open(const char *path, struct store **out, char **err)
 	}
 	if (migrate(s, err))
 		goto fail;
+	if (sqlite3_db_readonly(s->db, "main") != 1)
+		reserve_make(s);
 	*out = s;
 	return 0;
 fail:
@@ -459,6 +597,7 @@ void store_close(struct store *s)
 	for (int i = 0; i < ST_COUNT; i++)
 		sqlite3_finalize(s->st[i]);
 	sqlite3_close(s->db);
+	reserve_release(s);
 	free(s->path);
 	free(s);
 }
@@ -523,6 +662,8 @@ void store_session_describe(struct store_session *ss, const struct protocol *p,
 		ss->protocol_path = dup_or_null(p->path);
 		free(ss->protocol_text);
 		ss->protocol_text = dup_or_null(p->text);
+		if (p->text)
+			sha256_hex(p->text, strlen(p->text), ss->protocol_sha256);
 		ss->stim_deg = p->size_deg;
 		if (!ss->stimuli_path && p->stimuli)
 			ss->stimuli_path = xstrdup(p->stimuli);
@@ -1553,7 +1694,7 @@ static int count_query(struct store *s, const char *sql, size_t *out, char **err
 }
 
 /* Copies SRC (which may be in WAL mode) into a new temporary file with the current schema, so an
- * old source can be read without writing to it. *TMP gets the file's path (caller unlinks). */
+ * old or read-only source can be read without writing to it. *TMP gets the file's path (caller unlinks). */
 static int migrated_copy(const char *src, char **tmp, char **err)
 {
 	const char *dir = getenv("TMPDIR");
@@ -1567,7 +1708,8 @@ static int migrated_copy(const char *src, char **tmp, char **err)
 	close(fd);
 	struct store *from = NULL, *to = NULL;
 	int ret = -1;
-	if (open_raw(src, true, &from, err) || open_raw(path, false, &to, err))
+	int v;
+	if (open_read(src, &from, &v, NULL, err) || open_raw(path, OPEN_WRITE, &to, err))
 		goto done;
 	sqlite3_backup *b = sqlite3_backup_init(to->db, "main", from->db, "main");
 	if (!b) {
@@ -1622,10 +1764,11 @@ int store_merge_from(struct store *s, const char *src_path, struct store_merge_s
 	}
 	/* Look at the source's schema version without changing the file. */
 	struct store *peek;
-	if (open_raw(src_path, true, &peek, err))
-		return -1;
 	int v = 0, ntables = 0;
-	if (user_version(peek, &v, err) || table_count(peek, &ntables, err)) {
+	bool imm;
+	if (open_read(src_path, &peek, &v, &imm, err))
+		return -1;
+	if (table_count(peek, &ntables, err)) {
 		store_close(peek);
 		return -1;
 	}
@@ -1642,7 +1785,9 @@ int store_merge_from(struct store *s, const char *src_path, struct store_merge_s
 	}
 	char *tmp = NULL;
 	const char *attach_path = src_path;
-	if (v < STORE_SCHEMA_VERSION) {
+	/* An old schema, or a file only readable as immutable (ATTACH could not read it), is read
+	 * through a private copy. */
+	if (v < STORE_SCHEMA_VERSION || imm) {
 		if (migrated_copy(src_path, &tmp, err))
 			return -1;
 		attach_path = tmp;

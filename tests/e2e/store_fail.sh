@@ -1,0 +1,52 @@
+# e2e store_fail — storage failures stop cleanly and lose no committed trial: a full disk (a
+# 512 KiB tmpfs mounted in a private namespace with `unshare`), and a read-only database file.
+. tests/e2e/lib.sh
+FILL=$ROOT/$BUILD/tools/store_fill
+chmod 755 "$WORK"
+# -- full disk ---------------------------------------------------------------------------------
+mkdir "$WORK/tiny"
+cat >"$WORK/full.sh" <<SHEOF
+mount -t tmpfs -o size=512k tmpfs "$WORK/tiny" || exit 77
+"$FILL" "$WORK/tiny/x.db" 1 100000 --flips 100 >"$WORK/fill.out" 2>"$WORK/fill.err"
+echo "rc \$?" >"$WORK/full.res"
+sqlite3 "$WORK/tiny/x.db" 'PRAGMA integrity_check' >>"$WORK/full.res" 2>&1
+sqlite3 "$WORK/tiny/x.db" "SELECT count(*), coalesce(max(trial) + 1, 0), (SELECT status FROM sessions) FROM trials" >>"$WORK/full.res" 2>&1
+SHEOF
+unshare -rm sh "$WORK/full.sh"; rc=$?
+if [ "$rc" = 77 ] || [ ! -s "$WORK/full.res" ]; then
+  ok "full disk: skipped (cannot mount a tmpfs in a private namespace here) # SKIP"
+else
+  expect_eq "full disk stops the writer with exit 1" "rc 1" "$(sed -n 1p "$WORK/full.res")"
+  check "with a message naming the full disk" grep -q "disk is full" "$WORK/fill.err"
+  expect_eq "the database still checks ok" ok "$(sed -n 2p "$WORK/full.res")"
+  n=$(sed -n 's/^committed //p' "$WORK/fill.out")
+  check "some trials were committed before the disk filled" test "${n:-0}" -gt 10
+  expect_eq "every committed trial is there, indices contiguous, session aborted" "$n|$n|aborted" "$(sed -n 3p "$WORK/full.res")"
+fi
+# -- read-only file ----------------------------------------------------------------------------
+# Root ignores permission bits: run as nobody when we are root.
+as_user() { if [ "$(id -u)" = 0 ]; then setpriv --reuid=65534 --regid=65534 --clear-groups "$@"; else "$@"; fi; }
+"$FILL" "$WORK/other.db" 1 3 --subject OTHER >/dev/null
+chmod 644 "$WORK/other.db"
+# (a) the file is read-only, its folder writable; (b) the folder is read-only too (a share).
+mkdir "$WORK/rw" "$WORK/ro"
+chmod 777 "$WORK/rw"
+for where in rw ro; do
+  db=$WORK/$where/x.db
+  "$FILL" "$db" 1 5 --subject RO >/dev/null
+  chmod 444 "$db"
+  [ "$where" = ro ] && chmod 555 "$WORK/ro"
+  before=$(sqlite3 "$db" 'SELECT count(*) FROM trials')
+  as_user "$TACHIST" merge --into "$db" "$WORK/other.db" >"$WORK/ro.out" 2>"$WORK/ro.err"
+  expect_eq "$where: merging into a read-only database fails" 1 $?
+  check "$where: with a message saying the database is read-only" grep -q "read-only" "$WORK/ro.err"
+  expect_eq "$where: its trials are intact" "$before" "$(sqlite3 "$db" 'SELECT count(*) FROM trials')"
+  as_user "$TACHIST" sessions --db "$db" >"$WORK/ro.out" 2>"$WORK/ro.err"
+  expect_eq "$where: a read-only database can still be listed" 0 $?
+  as_user "$TACHIST" export --db "$db" --format csv --out - >"$WORK/ro.csv" 2>"$WORK/ro.err"
+  expect_eq "$where: and exported" 5 "$(grep -c '^[0-9a-f]\{8\}-' "$WORK/ro.csv")"
+  as_user "$TACHIST" merge --into "$WORK/rw/pool.db" "$db" >"$WORK/ro.out" 2>"$WORK/ro.err"
+  expect_eq "$where: and merged from" 0 $?
+done
+chmod 755 "$WORK/ro"
+expect_eq "the pool got both read-only sessions" 2 "$(sqlite3 "$WORK/rw/pool.db" 'SELECT count(*) FROM sessions')"
