@@ -372,9 +372,16 @@ static int is_dir(const char *path)
 	return stat(path, &st) == 0 && S_ISDIR(st.st_mode);
 }
 
-/* Collects the images below FOLDER (recursively) for CATEGORY. */
-static void collect(const char *folder, const char *category, struct found_list *fl)
+/* Collects the images below FOLDER (recursively, at most DEPTH folders down, which also stops
+ * symbolic-link loops) for CATEGORY. SKIP (may be NULL) is the resolved path of the list being
+ * written, left out if it lies in the tree. */
+static void collect(const char *folder, const char *category, int depth, const char *skip,
+		    struct found_list *fl)
 {
+	if (depth <= 0) {
+		skip_note(fl, xasprintf("%s: skipped: folders nested too deep (a link loop?)", folder), 1);
+		return;
+	}
 	size_t n;
 	char **names = list_dir(folder, &n);
 	if (!names) {
@@ -388,7 +395,12 @@ static void collect(const char *folder, const char *category, struct found_list 
 			continue;
 		}
 		if (is_dir(p)) {
-			collect(p, category, fl);
+			collect(p, category, depth - 1, skip, fl);
+			free(p);
+			continue;
+		}
+		char real[PATH_MAX];
+		if (skip && realpath(p, real) && !strcmp(real, skip)) {
 			free(p);
 			continue;
 		}
@@ -457,6 +469,9 @@ static int stimuli_import(int argc, char **argv)
 		return EXIT_PROBLEMS;
 	}
 	struct found_list fl = {0};
+	char out_real[PATH_MAX];
+	if (!realpath(out, out_real))
+		out_real[0] = '\0';
 	size_t n;
 	char **top = list_dir(dir, &n);
 	for (size_t i = 0; top && i < n; i++) {
@@ -464,7 +479,7 @@ static int stimuli_import(int argc, char **argv)
 			continue;
 		char *p = xasprintf("%s/%s", dir, top[i]);
 		if (is_dir(p))
-			collect(p, top[i], &fl);
+			collect(p, top[i], 32, out_real[0] ? out_real : NULL, &fl);
 		else
 			skip_note(&fl, xasprintf("%s: ignored: not inside a category folder", p), 0);
 		free(p);
@@ -1355,10 +1370,19 @@ static int stimuli_controls(int argc, char **argv)
 		cells[c_l2] = l2o;
 		wok = csv_row(fo, cells, ncol) == 0;
 		image_free(&img);
-		if (c && wok) {
-			/* Write the control: OUT/<category>/<stem>_rand[_N].png */
+		if (c && wok && budget == 0) {
+			printf("%s:%d: %s: note: budget 0 (the image equals its source); no control "
+			       "needed\n", list, s->line, s->image);
+		} else if (c && wok) {
+			/* Write the control: OUT/<category>/<stem>_rand[_N].png, the category made safe
+			 * as one folder name. */
 			char *stem = stem_of(s->image);
-			char *catdir = xasprintf("%s/%s", outdir, s->category);
+			char *safe = xstrdup(s->category);
+			for (char *q = safe; *q; q++)
+				if (*q == '/' || *q == '\\' || (q == safe && *q == '.'))
+					*q = '_';
+			char *catdir = xasprintf("%s/%s", outdir, safe);
+			free(safe);
 			char *name = xasprintf("%s/%s_rand.png", catdir, stem);
 			for (int k = 2;; k++) {
 				size_t u;
@@ -1386,9 +1410,11 @@ static int stimuli_controls(int argc, char **argv)
 				       "%.6g): too many source values sit at the limits of the range\n", list,
 				       s->line, s->image, budget, 100 * tol, res.achieved);
 				nfail++;
-			} else if (mkdir_p(catdir) || image_save_png(name, &out, err, sizeof err)) {
-				printf("%s:%d: cannot write the control: %s\n", list, s->line,
-				       errno ? strerror(errno) : err);
+			} else if (mkdir_p(catdir)) {
+				printf("%s:%d: cannot create %s: %s\n", list, s->line, catdir, strerror(errno));
+				nfail++;
+			} else if (image_save_png(name, &out, err, sizeof err)) {
+				printf("%s:%d: cannot write the control: %s\n", list, s->line, err);
 				nfail++;
 			} else {
 				char ach[64];

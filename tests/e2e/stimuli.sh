@@ -168,6 +168,10 @@ expect_exit "import without a pattern" 1 "$TACHIST" stimuli import "$T" --out "$
 check "no level column without a pattern" grep -q '^"image","category"' "$WORK/imp3.csv"
 expect_exit "a pattern without {level} is a usage error" 2 "$TACHIST" stimuli import "$T" --out "$WORK/x.csv" --level-from '{source}'
 expect_exit "an unknown placeholder is a usage error" 2 "$TACHIST" stimuli import "$T" --out "$WORK/x.csv" --level-from '{lvl}'
+"$TACHIST" stimuli import "$SET" --out "$SET/kettle/self.csv" >/dev/null
+expect_exit "import again with the list inside the tree" 0 "$TACHIST" stimuli import "$SET" --out "$SET/kettle/self.csv"
+check "the list being written is not taken as an image" sh -c "! grep -q 'self.csv: skipped' '$WORK/last.out'"
+rm -f "$SET/kettle/self.csv"
 expect_exit "import of a missing folder exits 1" 1 "$TACHIST" stimuli import "$WORK/nowhere" --out "$WORK/x.csv"
 
 # --- controls -------------------------------------------------------------------------------
@@ -211,11 +215,14 @@ sys.path.insert(0, "tests/tools"); import stimset
 stimset.write_png(sys.argv[1] + "/white.png", np.full((32, 32, 3), 255))
 stimset.write_png(sys.argv[1] + "/black.png", np.zeros((32, 32, 3)))
 EOF
-printf 'image,category,level,source\nrgb.png,a,1,gone.png\nrgb.png,b,1,small.png\nblack.png,c,55.4,white.png\n' >"$C/list.csv"
+printf 'image,category,level,source\nrgb.png,a,1,gone.png\nrgb.png,b,1,small.png\nblack.png,c,55.4,white.png\nrgb.png,../evil,1,black.png\nrgb.png,d,0,rgb.png\n' >"$C/list.csv"
 expect_exit "controls with bad rows exit 1" 1 "$TACHIST" stimuli controls "$C/list.csv" --out "$WORK/cbad-out"
 check "a missing source is named" grep -q "list.csv:2: rgb.png: its source cannot be read: .*gone.png" "$WORK/last.out"
 check "a source of another size is named" grep -q "list.csv:3: rgb.png is 32x32 but its source is 16x16" "$WORK/last.out"
 check "an unreachable budget is reported" grep -q "list.csv:4: black.png: the L2 budget .* cannot be reached" "$WORK/last.out"
+check "a category cannot lead outside the output folder" test -f "$WORK/cbad-out/_._evil/rgb_rand.png"
+check "nothing written beside the output folder" test ! -e "$WORK/evil"
+check "a budget of 0 needs no control" grep -q "list.csv:6: rgb.png: note: budget 0" "$WORK/last.out"
 expect_exit "controls --budget level with an unreachable level" 1 "$TACHIST" stimuli controls "$C/list.csv" --out "$WORK/cbad-out2" --budget level
 expect_exit "controls without --out is a usage error" 2 "$TACHIST" stimuli controls "$SET/list.csv"
 expect_exit "an unknown action is a usage error" 2 "$TACHIST" stimuli frob
