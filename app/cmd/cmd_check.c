@@ -14,6 +14,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "adapt.h"
 #include "cmd.h"
 #include "geom.h"
 #include "image.h"
@@ -224,7 +225,14 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 		size_t nl, nc;
 		block_conditions(pl, b, l, &nl, &nc);
 		char cond[96];
-		if (pb->adaptive)
+		const struct adapt_spec *as = pb->adaptive ? adapt_spec_find(p->adaptive,
+									       p->nadaptive, pb->adaptive)
+							   : NULL;
+		if (as) {
+			size_t ns = adapt_spec_nstairs(as, p->nchoices);
+			snprintf(cond, sizeof cond, "adaptive %s: %s, %zu staircase%s (trials at most)",
+				 as->name, adapt_rule_name(as->base.rule), ns, ns == 1 ? "" : "s");
+		} else if (pb->adaptive)
 			snprintf(cond, sizeof cond, "adaptive (%s) x %zu categories", pb->adaptive, nc);
 		else
 			snprintf(cond, sizeof cond, "%zu level%s x %zu categor%s = %zu", nl ? nl : 1,
@@ -311,6 +319,14 @@ static cJSON *json_doc(const struct protocol *p, const struct rig *r, const stru
 			cJSON_AddStringToObject(o, "adaptive", pb->adaptive);
 		else
 			cJSON_AddNullToObject(o, "adaptive");
+		const struct adapt_spec *as = pb->adaptive ? adapt_spec_find(p->adaptive,
+									       p->nadaptive, pb->adaptive)
+							   : NULL;
+		if (as) {
+			cJSON_AddStringToObject(o, "rule", adapt_rule_name(as->base.rule));
+			cJSON_AddNumberToObject(o, "staircases",
+						(double)adapt_spec_nstairs(as, p->nchoices));
+		}
 		cJSON_AddNumberToObject(o, "levels", (double)nl);
 		cJSON_AddNumberToObject(o, "categories", (double)nc);
 		cJSON_AddItemToArray(bl, o);

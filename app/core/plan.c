@@ -6,8 +6,9 @@
  * bits), serves every block in turn, so the same inputs give the same plan everywhere. The random
  * order is drawn trial by trial: each step picks a remaining trial uniformly among those whose
  * category keeps the rest of the block arrangeable within the run limit (see feasible()).
- * Adaptive blocks get one trial per selected row and repeat like the others, with stim = -1 and
- * staircase 0: the adaptive rule picks the image at run time. Called by `check`, `run`, the console. */
+ * Adaptive blocks get their trials from the adaptive module (adaptive_trials below): trials of
+ * interleaved staircases with stim = -1; the rule picks the image at run time. Called by `check`,
+ * `run`, the console. */
 #include "plan.h"
 
 #include <math.h>
@@ -18,6 +19,7 @@
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 
+#include "adapt.h"
 #include "frames.h"
 #include "geom.h"
 #include "protocol.h"
@@ -134,6 +136,48 @@ static int shuffle_limited(struct plan_trial *t, size_t n, int k, size_t nc, gsl
 	return rc;
 }
 
+/* The trials of an adaptive block (the adaptive work's part of the plan): the staircases of its
+ * [adaptive NAME] section over the rows the block selects, in the order adapt_plan_order draws
+ * from RNG, each with stim = -1 until the rule picks the image at run time. Problems that need
+ * the list (a start or prior mean outside the levels offered, a category without usable levels)
+ * go to D. Returns the malloc'd trials and *N, or NULL. */
+static struct plan_trial *adaptive_trials(const struct protocol *p, const struct protocol_block *b,
+					  const struct stimlist *l, gsl_rng *rng, size_t *n,
+					  struct diag_list *d)
+{
+	const struct adapt_spec *as = adapt_spec_find(p->adaptive, p->nadaptive, b->adaptive);
+	if (!as)
+		return NULL;   /* reported by the protocol parser */
+	struct adapt_item *items = xmalloc((l->n ? l->n : 1) * sizeof *items);
+	size_t ni = 0;
+	for (size_t i = 0; i < l->n; i++) {
+		const struct stim *s = &l->items[i];
+		if (!row_selected(b, l, s))
+			continue;
+		int choice = protocol_choice_index(p, s->category);
+		items[ni++] = (struct adapt_item){(int)i, choice < 0 ? 0 : choice,
+						  s->has_level ? s->level : NAN};
+	}
+	int *st, *ch;
+	char why[256];
+	int rc = adapt_plan_order(as, p->nchoices, items, ni, rng, &st, &ch, n, why, sizeof why);
+	free(items);
+	if (rc) {
+		int line = rc == ADAPT_BAD_START ? as->lines.start
+			   : rc == ADAPT_BAD_LEVELS ? (b->select_line ? b->select_line : b->line)
+						    : as->lines.section;
+		diag_add(d, DIAG_ERROR, p->path, line, "block '%s' (adaptive %s): %s", b->name,
+			 as->name, why);
+		return NULL;
+	}
+	struct plan_trial *t = xmalloc((*n ? *n : 1) * sizeof *t);
+	for (size_t k = 0; k < *n; k++)
+		t[k] = (struct plan_trial){.stim = -1, .choice = ch[k], .staircase = st[k]};
+	free(st);
+	free(ch);
+	return t;
+}
+
 /* Reports a filter on a column the list lacks, or one that selects nothing. Returns the number
  * of rows selected (0 after a report). */
 static size_t block_selection(const struct protocol *p, const struct protocol_block *b,
@@ -172,8 +216,15 @@ static void block_trials(const struct protocol *p, const struct protocol_block *
 	size_t nsel = block_selection(p, b, l, d);
 	if (!nsel)
 		return;
-	size_t n = nsel * (size_t)b->repeats;
-	struct plan_trial *t = xmalloc(n * sizeof *t);
+	size_t n;
+	struct plan_trial *t;
+	if (b->adaptive) {
+		if (!(t = adaptive_trials(p, b, l, rng, &n, d)))
+			return;
+		goto append;
+	}
+	n = nsel * (size_t)b->repeats;
+	t = xmalloc(n * sizeof *t);
 	size_t k = 0;
 	for (int r = 0; r < b->repeats; r++)
 		for (size_t i = 0; i < l->n; i++) {
@@ -192,6 +243,7 @@ static void block_trials(const struct protocol *p, const struct protocol_block *
 		diag_add(d, DIAG_ERROR, p->path, b->line, "block '%s': no order of its %zu trials keeps "
 			 "runs of one category to max_run = %d", b->name, n, b->max_run);
 	}
+append:;
 	size_t first = pl->ntrials;
 	pl->trials = xrealloc(pl->trials, (pl->ntrials + n) * sizeof *pl->trials);
 	for (size_t i = 0; i < n; i++) {

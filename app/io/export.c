@@ -18,6 +18,7 @@
 
 #include "diag.h"
 #include "export.h"
+#include "rig.h"
 #include "store.h"
 #include "version.h"
 
@@ -774,6 +775,27 @@ done:
 	return ret;
 }
 
+/* A session whose presentation settings were not recorded gets them from its stored rig text. */
+static void fill_from_rig(struct store_session *ss)
+{
+	if (ss->distance_cm > 0 || !ss->rig_text)
+		return;
+	struct rig r;
+	struct diag_list d;
+	diag_init(&d);
+	if (rig_parse("rig", ss->rig_text, &r, &d) == 0) {
+		ss->screen_width_cm = r.width_cm;
+		ss->screen_height_cm = r.height_cm;
+		ss->screen_width_px = r.width_px;
+		ss->screen_height_px = r.height_px;
+		ss->distance_cm = r.distance_cm;
+		if (ss->nominal_hz <= 0)
+			ss->nominal_hz = r.refresh_hz;
+	}
+	rig_clear(&r);
+	diag_clear(&d);
+}
+
 int export_bids(struct store *s, const char *session, const char *subject, const char *dir,
 		struct export_stats *st, char **err)
 {
@@ -866,6 +888,7 @@ int export_bids(struct store *s, const char *session, const char *subject, const
 						 v[i].id, v[i].subject);
 			goto done;
 		}
+		fill_from_rig(&v[i]);
 		char *task = bids_label(v[i].protocol_name, "task");
 		rc = bids_session(s, &v[i], dir, v[i].subject, ses[i], task, &stats.rows, err);
 		free(task);

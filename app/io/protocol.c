@@ -21,6 +21,7 @@
 #include <string.h>
 
 #include "inifile.h"
+#include "protocol_adaptive.h"
 #include "suggest.h"
 
 struct protocol_ctx {
@@ -528,7 +529,7 @@ static const struct protocol_section *const sections[] = {
 	&timing_section,
 	&display_section,
 	&block_section,
-	/* the adaptive work adds its "[adaptive NAME]" kind here */
+	&protocol_adaptive_section,   /* "[adaptive NAME]", app/io/protocol_adaptive.c */
 };
 #define NSECTIONS (sizeof sections / sizeof sections[0])
 
