@@ -176,7 +176,8 @@ int run_measure_refresh(struct run_session *s, struct run_refresh *out, char **e
 
 size_t run_block_count(const struct run_session *s);
 int run_block_info(const struct run_session *s, size_t i, struct run_block_info *out);
-/* Index of the first block with planned trials not yet stored, or run_block_count() when none. */
+/* Index of the first block, not skipped, with planned trials not yet stored, or run_block_count()
+ * when none. */
 size_t run_next_block(const struct run_session *s);
 
 /* Runs block I: measures the refresh, shows the block's start screen, then its trials not yet
@@ -195,8 +196,8 @@ enum run_block_result run_all(struct run_session *s, run_progress_fn progress, v
 			      void (*on_block)(const struct run_block_summary *, void *),
 			      char **err);
 
-/* Marks the session complete (every planned trial stored), aborted or interrupted as fits what
- * happened, closes display and store and frees S. Returns 0, or -1 with *ERR when the final store
+/* Marks the session complete (every planned trial stored, blocks skipped in this process
+ * excepted), interrupted (a stop request) or aborted (ended early or failed), as fits what happened, closes display and store and frees S. Returns 0, or -1 with *ERR when the final store
  * write failed. S may be NULL. */
 int run_close(struct run_session *s, char **err);
 

@@ -600,6 +600,20 @@ static const struct src_cache *src_get(struct src_cache *c, const char *path)
 	return c;
 }
 
+/* Hands IMG (decoded from PATH) to the cache, which then owns it: a list usually names a clean
+ * image on one row and uses it as the source of the rows that follow. */
+static void src_put(struct src_cache *c, const char *path, struct image *img,
+		    const struct image_info *info)
+{
+	free(c->path);
+	image_free(&c->img);
+	c->path = xstrdup(path);
+	c->ok = 1;
+	c->img = *img;
+	c->info = *info;
+	memset(img, 0, sizeof *img);
+}
+
 static void src_clear(struct src_cache *c)
 {
 	free(c->path);
@@ -725,7 +739,11 @@ static void audit_row(struct audit *a, size_t i, struct src_cache *cache)
 			}
 		}
 	}
-	image_free(&img);
+	const struct stim *next = i + 1 < a->l->n ? &a->l->items[i + 1] : NULL;
+	if (next && next->source_path && !strcmp(next->source_path, s->path))
+		src_put(cache, s->path, &img, &r->info);
+	else
+		image_free(&img);
 }
 
 /* Orders row records by content hash, then by position, for finding exact duplicates by sorting

@@ -76,6 +76,7 @@ struct run_session {
 	bool *stored;            /* per planned trial */
 	int *next_bt;            /* per block: next free block_trial number for repeats */
 	int *runs;               /* per block */
+	bool *skipped;           /* per block: skipped by the experimenter or the observer */
 	int next_trial;          /* session trial number of the next trial shown */
 	uint64_t serial;         /* preload ids */
 	double refresh_hz;
@@ -378,6 +379,7 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 	s->stored = xcalloc(s->plan.ntrials + 1, sizeof *s->stored);
 	s->next_bt = xcalloc(s->plan.nblocks + 1, sizeof *s->next_bt);
 	s->runs = xcalloc(s->plan.nblocks + 1, sizeof *s->runs);
+	s->skipped = xcalloc(s->plan.nblocks + 1, sizeof *s->skipped);
 	for (size_t b = 0; b < s->plan.nblocks; b++)
 		s->next_bt[b] = (int)s->plan.blocks[b].ntrials;
 	if (open_presenter(s, o, d, err))
@@ -508,6 +510,8 @@ size_t run_next_block(const struct run_session *s)
 {
 	for (size_t b = 0; b < s->plan.nblocks; b++) {
 		const struct plan_block *pb = &s->plan.blocks[b];
+		if (s->skipped[b])
+			continue;
 		for (size_t k = 0; k < pb->ntrials; k++)
 			if (!s->stored[pb->first + k])
 				return b;
@@ -522,6 +526,7 @@ int run_block_skip(struct run_session *s, size_t i, char **err)
 		return -1;
 	}
 	s->runs[i]++;
+	s->skipped[i] = true;
 	return store_event(s->store, s->ss.id, "skip", pblock(s, i)->name, err);
 }
 
@@ -798,6 +803,7 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 	}
 	size_t qi = 0;
 	size_t requested = 0;
+	size_t rested_at = 0;      /* trial count at the last rest break */
 	while (fl == FLOW_ON && qi < nq) {
 		if (run_stop_requested()) {
 			fl = FLOW_STOP;
@@ -814,10 +820,10 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 				break;
 			}
 		}
-		if (s->proto.break_every > 0 && br.sum.trials > 0 &&
-		    br.sum.trials % (size_t)s->proto.break_every == 0 && qi > 0 && q[qi - 1].id != UINT64_MAX) {
+		if (s->proto.break_every > 0 && br.sum.trials > 0 && br.sum.trials != rested_at &&
+		    br.sum.trials % (size_t)s->proto.break_every == 0) {
+			rested_at = br.sum.trials;
 			fl = break_screen(&br, "Rest a moment", err);
-			q[qi - 1].id = UINT64_MAX;   /* this break is done */
 			if (fl != FLOW_ON)
 				break;
 		}
@@ -931,7 +937,7 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 	}
 	/* Release whatever the look-ahead still holds. */
 	for (size_t k = qi; k < nq; k++)
-		if (q[k].id && q[k].id != UINT64_MAX)
+		if (q[k].id)
 			preload_release(s->pre, q[k].id);
 	if (run_stop_requested() && fl == FLOW_ON)
 		fl = FLOW_STOP;
@@ -943,6 +949,8 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 	}
 	if (result == RUN_BLOCK_ENDED)
 		s->ended = true;
+	if (result == RUN_BLOCK_SKIPPED)
+		s->skipped[bi] = true;
 	if (result == RUN_BLOCK_INTERRUPTED)
 		s->interrupted = true;
 	if (!s->failed) {
@@ -982,11 +990,7 @@ enum run_block_result run_all(struct run_session *s, run_progress_fn progress, v
 		if (on_block)
 			on_block(&sum, ctx);
 		if (r == RUN_BLOCK_SKIPPED) {
-			/* The rest of a skipped block is not shown; mark it so run_next_block moves on. */
-			const struct plan_block *pb = &s->plan.blocks[b];
-			for (size_t k = 0; k < pb->ntrials; k++)
-				s->stored[pb->first + k] = true;
-			r = RUN_BLOCK_DONE;
+			r = RUN_BLOCK_DONE;   /* run_next_block passes over it now */
 			continue;
 		}
 		if (r != RUN_BLOCK_DONE)
@@ -1003,9 +1007,10 @@ int run_close(struct run_session *s, char **err)
 	int rc = 0;
 	if (s->store && s->ss.id[0] && s->have_plan && s->stored) {
 		enum store_status st = STORE_COMPLETE;
+		/* Complete: every planned trial stored, except in blocks deliberately skipped. */
 		size_t done = 0;
 		for (size_t k = 0; k < s->plan.ntrials; k++)
-			done += s->stored[k];
+			done += s->stored[k] || s->skipped[s->plan.trials[k].block];
 		if (s->interrupted || run_stop_requested())
 			st = STORE_INTERRUPTED;
 		else if (s->failed || s->ended || done < s->plan.ntrials)
@@ -1035,6 +1040,7 @@ int run_close(struct run_session *s, char **err)
 	free(s->stored);
 	free(s->next_bt);
 	free(s->runs);
+	free(s->skipped);
 	free(s);
 	return rc;
 }
