@@ -136,6 +136,24 @@ static int shuffle_limited(struct plan_trial *t, size_t n, int k, size_t nc, gsl
 	return rc;
 }
 
+struct adapt_item *plan_adaptive_items(const struct protocol *p, const struct stimlist *l,
+				       int proto_block, size_t *n)
+{
+	const struct protocol_block *b = &p->blocks[proto_block];
+	struct adapt_item *items = NULL;
+	*n = 0;
+	for (size_t i = 0; i < l->n; i++) {
+		const struct stim *s = &l->items[i];
+		if (!row_selected(b, l, s))
+			continue;
+		int choice = protocol_choice_index(p, s->category);
+		items = xrealloc(items, (*n + 1) * sizeof *items);
+		items[(*n)++] = (struct adapt_item){(int)i, choice < 0 ? 0 : choice,
+						    s->has_level ? s->level : NAN};
+	}
+	return items;
+}
+
 /* The trials of an adaptive block (the adaptive work's part of the plan): the staircases of its
  * [adaptive NAME] section over the rows the block selects, in the order adapt_plan_order draws
  * from RNG, each with stim = -1 until the rule picks the image at run time. Problems that need
@@ -148,16 +166,8 @@ static struct plan_trial *adaptive_trials(const struct protocol *p, const struct
 	const struct adapt_spec *as = adapt_spec_find(p->adaptive, p->nadaptive, b->adaptive);
 	if (!as)
 		return NULL;   /* reported by the protocol parser */
-	struct adapt_item *items = xmalloc((l->n ? l->n : 1) * sizeof *items);
-	size_t ni = 0;
-	for (size_t i = 0; i < l->n; i++) {
-		const struct stim *s = &l->items[i];
-		if (!row_selected(b, l, s))
-			continue;
-		int choice = protocol_choice_index(p, s->category);
-		items[ni++] = (struct adapt_item){(int)i, choice < 0 ? 0 : choice,
-						  s->has_level ? s->level : NAN};
-	}
+	size_t ni;
+	struct adapt_item *items = plan_adaptive_items(p, l, (int)(b - p->blocks), &ni);
 	int *st, *ch;
 	char why[256];
 	int rc = adapt_plan_order(as, p->nchoices, items, ni, rng, &st, &ch, n, why, sizeof why);
