@@ -63,6 +63,8 @@ struct adapt_params {
  * γ = 0.5, prior SD 0.5, grain 0.01, place = mean, quantile 0.5. start/floor/ceiling/steps/
  * max_trials are left 0 for the caller. */
 void adapt_params_default(struct adapt_params *p);
+/* "updown", "weighted", "quest" (the protocol's words). */
+const char *adapt_rule_name(enum adapt_rule r);
 
 /* Axis value of LEVEL (log10 on a log axis; NaN when level <= 0 there). */
 double adapt_axis_value(enum adapt_axis axis, double level);
@@ -123,7 +125,7 @@ int adapt_params_check(const struct adapt_params *p, char *why, size_t len);
 
 /* Lines of the keys in the protocol file, for FILE:LINE messages of checks made later. */
 struct adapt_spec_lines {
-	int section, start, floor, ceiling, prior_sd;
+	int section, rule, axis, start, floor, ceiling, trials, reversals, average_last;
 };
 
 struct adapt_spec {
@@ -137,6 +139,8 @@ struct adapt_spec {
 };
 
 void adapt_spec_clear(struct adapt_spec *s);
+/* The spec named NAME among the N specs of the array SPECS (protocol.adaptive), or NULL. */
+const struct adapt_spec *adapt_spec_find(const void *specs, size_t n, const char *name);
 
 /* A stimulus an adaptive block may show. */
 struct adapt_item {
@@ -151,8 +155,10 @@ struct adapt_item {
 size_t adapt_spec_nstairs(const struct adapt_spec *s, size_t nchoices);
 /* Fills P with the parameters of staircase I and *CHOICE with its category (-1: any). Levels
  * usable for the axis among ITEMS give floor and ceiling when the spec has none; γ = 1/NCHOICES.
- * Returns 0, or -1 with a sentence in WHY when the staircase cannot run on these items (no usable
- * level for its category, start or prior mean outside the range, ...). */
+ * Returns 0, or with a sentence in WHY: ADAPT_BAD_START when the start or prior mean lies outside
+ * the level range, ADAPT_BAD_LEVELS when no item of the staircase's category has a level usable
+ * on the axis, ADAPT_BAD_PARAMS for any other inconsistency (adapt_params_check). */
+enum { ADAPT_BAD_START = -1, ADAPT_BAD_LEVELS = -2, ADAPT_BAD_PARAMS = -3 };
 int adapt_spec_expand(const struct adapt_spec *s, size_t nchoices, const struct adapt_item *items,
 		      size_t nitems, size_t i, struct adapt_params *p, int *choice, char *why,
 		      size_t len);
@@ -160,11 +166,11 @@ int adapt_spec_expand(const struct adapt_spec *s, size_t nchoices, const struct 
 /* The trial order of an adaptive block: rounds in which every staircase comes once, in an order
  * shuffled with RNG; each trial's category is the staircase's own, or for staircases open to any
  * category the next of a shuffled deck of the categories that have usable levels. Fills malloc'd
- * arrays *STAIR and *CHOICE (max_trials × nstairs entries) and returns their length; 0 with both
- * NULL when the spec cannot run on ITEMS. */
-size_t adapt_plan_order(const struct adapt_spec *s, size_t nchoices,
-			const struct adapt_item *items, size_t nitems, gsl_rng *rng, int **stair,
-			int **choice);
+ * arrays *STAIR and *CHOICE with *N = max_trials × nstairs entries and returns 0; or returns an
+ * ADAPT_BAD_* code of adapt_spec_expand with a sentence in WHY (nothing allocated). */
+int adapt_plan_order(const struct adapt_spec *s, size_t nchoices, const struct adapt_item *items,
+		     size_t nitems, gsl_rng *rng, int **stair, int **choice, size_t *n, char *why,
+		     size_t len);
 
 /* ---- one block at run time ----------------------------------------------------------------- */
 

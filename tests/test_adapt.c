@@ -499,7 +499,9 @@ static void adapt_testInterleaveOrder(void **state)
 	gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
 	gsl_rng_set(r, 77);
 	int *st, *ch, *st2, *ch2;
-	size_t n = adapt_plan_order(&sp, 3, items, 6, r, &st, &ch);
+	size_t n;
+	char why[160];
+	assert_int_equal(adapt_plan_order(&sp, 3, items, 6, r, &st, &ch, &n, why, sizeof why), 0);
 	assert_int_equal(n, 30);
 	for (size_t round = 0; round < 5; round++) {
 		int count[6] = {0};
@@ -512,12 +514,14 @@ static void adapt_testInterleaveOrder(void **state)
 			assert_int_equal(count[s], 1);
 	}
 	gsl_rng_set(r, 77);
-	assert_int_equal(adapt_plan_order(&sp, 3, items, 6, r, &st2, &ch2), 30);
+	size_t n2;
+	assert_int_equal(adapt_plan_order(&sp, 3, items, 6, r, &st2, &ch2, &n2, why, sizeof why), 0);
+	assert_int_equal(n2, 30);
 	assert_memory_equal(st, st2, 30 * sizeof *st);
 	free(st2);
 	free(ch2);
 	gsl_rng_set(r, 78);
-	adapt_plan_order(&sp, 3, items, 6, r, &st2, &ch2);
+	adapt_plan_order(&sp, 3, items, 6, r, &st2, &ch2, &n2, why, sizeof why);
 	assert_memory_not_equal(st, st2, 30 * sizeof *st);
 	free(st2);
 	free(ch2);
@@ -526,7 +530,7 @@ static void adapt_testInterleaveOrder(void **state)
 	/* Open to any category: each staircase's 3 consecutive trials cover the 3 categories. */
 	sp.per_category = false;
 	sp.base.max_trials = 6;
-	n = adapt_plan_order(&sp, 3, items, 6, r, &st, &ch);
+	assert_int_equal(adapt_plan_order(&sp, 3, items, 6, r, &st, &ch, &n, why, sizeof why), 0);
 	assert_int_equal(n, 12);
 	for (int s = 0; s < 2; s++) {
 		int k = 0, mask = 0;
@@ -590,9 +594,11 @@ static void adapt_testReplayResumesExactly(void **state)
 		gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
 		gsl_rng_set(r, 404);
 		int *st, *ch;
-		size_t np = adapt_plan_order(&sp, 2, items, 40, r, &st, &ch);
-		assert_int_equal(np, 60);
+		size_t np;
 		char why[160];
+		assert_int_equal(adapt_plan_order(&sp, 2, items, 40, r, &st, &ch, &np, why, sizeof why),
+				 0);
+		assert_int_equal(np, 60);
 		struct shown full[60], part[60];
 		gsl_rng_set(r, 9);
 		struct adapt_block *b = adapt_block_create(&sp, 2, items, 40, 123, 1, why,
@@ -700,7 +706,8 @@ static void adapt_testParamChecks(void **state)
 	struct adapt_spec sp;
 	spec_init(&sp, ADAPT_QUEST, ADAPT_AXIS_LOG, prior, 1, false, 20);
 	int choice;
-	assert_int_equal(adapt_spec_expand(&sp, 2, items, 2, 0, &q, &choice, why, sizeof why), -1);
+	assert_int_equal(adapt_spec_expand(&sp, 2, items, 2, 0, &q, &choice, why, sizeof why),
+			 ADAPT_BAD_START);
 	assert_non_null(strstr(why, "prior mean"));
 	sp.starts[0] = 0.05;
 	assert_int_equal(adapt_spec_expand(&sp, 2, items, 2, 0, &q, &choice, why, sizeof why), 0);
@@ -710,7 +717,8 @@ static void adapt_testParamChecks(void **state)
 	/* Per-category staircase whose category has no usable level (0 on a log axis). */
 	const struct adapt_item zero[] = {{0, 0, 0.1}, {1, 1, 0.0}};
 	sp.per_category = true;
-	assert_int_equal(adapt_spec_expand(&sp, 2, zero, 2, 1, &q, &choice, why, sizeof why), -1);
+	assert_int_equal(adapt_spec_expand(&sp, 2, zero, 2, 1, &q, &choice, why, sizeof why),
+			 ADAPT_BAD_LEVELS);
 	assert_int_equal(choice, 1);
 	adapt_spec_clear(&sp);
 }

@@ -1,5 +1,5 @@
 /* test_plan — trial plans: reproducible from the seed, run limits kept, filters, repeats, frames,
- * duration estimate, adaptive placeholders. */
+ * duration estimate, adaptive blocks. */
 #include <setjmp.h>
 #include <stdarg.h>
 #include <stddef.h>
@@ -198,26 +198,58 @@ static void plan_testFramesAndDuration(void **state)
 	teardown(&f);
 }
 
-/* Adaptive blocks: one trial per selected row, no image yet (stim -1), category kept. */
-static void plan_testAdaptivePlaceholders(void **state)
+/* Adaptive blocks: the staircases of the [adaptive] section interleaved in rounds (each staircase
+ * once per round), no image yet (stim -1), per-category staircases keep their category. */
+static void plan_testAdaptiveStaircases(void **state)
 {
 	(void)state;
 	struct fixture f;
-	setup_with(&f, "[block st]\nselect = level=0\nrepeats = 3\n");
-	f.p.blocks[0].adaptive = strdup("stair");
-	struct plan a;
+	setup_with(&f, "[block st]\nselect = level=1,2\nadaptive = stair\n"
+		       "[adaptive stair]\nrule = updown\nstart = 2, 1\nper_category = yes\n"
+		       "step = 0.1\ntrials = 5\n");
+	struct plan a, b;
 	struct diag_list d;
 	diag_init(&d);
 	assert_int_equal(plan_build(&f.p, &f.l, &f.r, 5, &a, &d), 0);
-	assert_int_equal(a.ntrials, 9);
-	int count[3] = {0};
-	for (size_t i = 0; i < a.ntrials; i++) {
-		assert_int_equal(a.trials[i].stim, -1);
-		assert_int_equal(a.trials[i].staircase, 0);
-		count[a.trials[i].choice]++;
+	assert_int_equal(diag_count(&d, DIAG_ERROR), 0);
+	assert_int_equal(a.ntrials, 30);   /* 3 categories × 2 starts × 5 trials */
+	for (size_t round = 0; round < 5; round++) {
+		int seen[6] = {0};
+		for (size_t j = 0; j < 6; j++) {
+			const struct plan_trial *t = &a.trials[round * 6 + j];
+			assert_int_equal(t->stim, -1);
+			assert_true(t->staircase >= 0 && t->staircase < 6);
+			assert_int_equal(t->choice, t->staircase / 2);
+			assert_int_equal(t->block_trial, (int)(round * 6 + j));
+			seen[t->staircase]++;
+		}
+		for (int s = 0; s < 6; s++)
+			assert_int_equal(seen[s], 1);
 	}
-	assert_int_equal(count[0], 3);
-	assert_int_equal(count[1], 3);
+	assert_int_equal(plan_build(&f.p, &f.l, &f.r, 5, &b, &d), 0);
+	assert_string_equal(a.hash, b.hash);
+	plan_clear(&a);
+	plan_clear(&b);
+	diag_clear(&d);
+	teardown(&f);
+}
+
+/* A QUEST prior mean outside the levels the block offers is an error at its line. */
+static void plan_testAdaptivePriorOutsideLevels(void **state)
+{
+	(void)state;
+	struct fixture f;
+	setup_with(&f, "[block st]\nselect = level=1,2\nadaptive = stair\n"   /* 17-19 */
+		       "[adaptive stair]\nrule = quest\nprior_mean = 5\ntrials = 5\n");   /* 20-23 */
+	struct plan a;
+	struct diag_list d;
+	diag_init(&d);
+	assert_int_equal(plan_build(&f.p, &f.l, &f.r, 5, &a, &d), -1);
+	assert_int_equal(diag_count(&d, DIAG_ERROR), 1);
+	char buf[512];
+	diag_format(&d.v[0], buf, sizeof buf);
+	assert_string_equal(buf, "p.ini:22: error: block 'st' (adaptive stair): the prior mean 5 is "
+			    "outside the level range [1, 2]");
 	plan_clear(&a);
 	diag_clear(&d);
 	teardown(&f);
@@ -231,7 +263,8 @@ int main(void)
 		cmocka_unit_test(plan_testImpossibleRun),
 		cmocka_unit_test(plan_testFixedAndFilters),
 		cmocka_unit_test(plan_testFramesAndDuration),
-		cmocka_unit_test(plan_testAdaptivePlaceholders),
+		cmocka_unit_test(plan_testAdaptiveStaircases),
+		cmocka_unit_test(plan_testAdaptivePriorOutsideLevels),
 	};
 	return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -15,6 +15,7 @@
 #include "frames.h"
 #include "geom.h"
 #include "rig.h"
+#include "stats.h"
 
 #define CALC_MAX_OPTS 6
 #define CALC_MAX_OUT 6
@@ -144,12 +145,84 @@ static int calc_frames(const struct calc_args *a, struct calc_out *o)
 	return 0;
 }
 
+/* A whole number at least LO from option NAME's value V; -1 after saying why. */
+static int whole(const char *name, double v, double lo, long *out)
+{
+	if (v != floor(v) || v < lo || v > 1e9) {
+		fprintf(stderr, "tachist calc: --%s must be a whole number of at least %g\n", name, lo);
+		return -1;
+	}
+	*out = (long)v;
+	return 0;
+}
+
+/* d′ for m-AFC from proportion correct; with --n, 0 and 1 get the 1/(2N) rule (stats.h). */
+static int calc_dprime(const struct calc_args *a, struct calc_out *o)
+{
+	long m, n = 0;
+	double pc = a->num[1];
+	if (whole("m", a->num[0], 2, &m) || (a->text[2] && whole("n", a->num[2], 1, &n)))
+		return -1;
+	if (!(pc >= 0 && pc <= 1)) {
+		fprintf(stderr, "tachist calc: --pc must be a proportion between 0 and 1\n");
+		return -1;
+	}
+	const char *note = "";
+	if (pc == 0 || pc == 1) {
+		if (!n) {
+			fprintf(stderr, "tachist calc: d' is infinite at pc = %g; give --n N (trials) to "
+				"use the 1/(2N) correction\n", pc);
+			return -1;
+		}
+		pc = stats_pc_corrected(pc == 0 ? 0 : (unsigned long)n, (unsigned long)n, NULL);
+		note = " (1/(2N) correction applied)";
+	}
+	double d;
+	if (stats_dprime_mafc(pc, (int)m, &d) < 0) {
+		fprintf(stderr, "tachist calc: no d' found for pc %g with m = %ld\n", pc, m);
+		return 1;
+	}
+	put(o, "dprime", d, 0);
+	snprintf(o->sentence, sizeof o->sentence, "pc %g in %ld-AFC (chance %.4g) is d' = %.4f%s%s",
+		 pc, m, 1.0 / (double)m, d, pc < 1.0 / (double)m ? " (below chance)" : "", note);
+	return 0;
+}
+
+/* A 95% (or --level) interval for K correct of N: Wilson score or exact Clopper–Pearson. */
+static int calc_ci(const struct calc_args *a, struct calc_out *o)
+{
+	long k, n;
+	if (whole("k", a->num[0], 0, &k) || whole("n", a->num[1], 1, &n))
+		return -1;
+	if (k > n) {
+		fprintf(stderr, "tachist calc: --k (%ld) cannot exceed --n (%ld)\n", k, n);
+		return -1;
+	}
+	enum stats_ci_method meth = STATS_CI_WILSON;
+	if (a->text[2] && stats_ci_method_parse(a->text[2], &meth) < 0) {
+		fprintf(stderr, "tachist calc: --method is wilson or exact (got '%s')\n", a->text[2]);
+		return -1;
+	}
+	double level = a->text[3] ? a->num[3] : 0.95, lo, hi;
+	if (stats_ci(meth, (unsigned long)k, (unsigned long)n, level, &lo, &hi) < 0) {
+		fprintf(stderr, "tachist calc: --level must lie between 0 and 1\n");
+		return -1;
+	}
+	put(o, "lower", lo, 0);
+	put(o, "upper", hi, 0);
+	snprintf(o->sentence, sizeof o->sentence, "%ld of %ld = %.4f, %g%% %s interval [%.4f, %.4f]",
+		 k, n, (double)k / (double)n, level * 100,
+		 meth == STATS_CI_EXACT ? "exact (Clopper-Pearson)" : "Wilson score", lo, hi);
+	return 0;
+}
+
 static const struct calc calcs[] = {
 	{"angle", {"size", "distance", NULL}, 0x3, 0, calc_angle},
 	{"size", {"deg", "distance", NULL}, 0x3, 0, calc_size},
 	{"pixels", {"deg", "rig", NULL}, 0x1, 0x2, calc_pixels},
 	{"frames", {"ms", "hz", NULL}, 0x3, 0, calc_frames},
-	/* the analysis work adds "dprime" and "ci" rows here */
+	{"dprime", {"m", "pc", "n", NULL}, 0x3, 0, calc_dprime},
+	{"ci", {"k", "n", "method", "level", NULL}, 0x3, 0x4, calc_ci},
 };
 
 static void print_json(const struct calc_out *o)

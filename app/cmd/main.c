@@ -34,8 +34,8 @@ static const struct cmd commands[] = {
 	 "tachist calc size --deg D --distance CM [--json]\n"
 	 "tachist calc pixels --deg D [--rig FILE] [--json]\n"
 	 "tachist calc frames --ms MS --hz HZ [--json]\n"
-	 "tachist calc dprime --m N --pc P [--json]\n"
-	 "tachist calc ci --k K --n N [--method wilson|exact] [--json]\n", cmd_calc},
+	 "tachist calc dprime --m N --pc P [--n TRIALS] [--json]\n"
+	 "tachist calc ci --k K --n N [--method wilson|exact] [--level 0.95] [--json]\n", cmd_calc},
 	{"stimuli", "import, audit and make controls for a stimulus set",
 	 "tachist stimuli import DIR --out LIST.csv [--level-from PATTERN]\n"
 	 "tachist stimuli audit LIST.csv [--rig FILE] [--json] [--size-deg D | --protocol FILE]\n"

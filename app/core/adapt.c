@@ -66,6 +66,16 @@ void adapt_params_default(struct adapt_params *p)
 	p->ceiling = NAN;
 }
 
+const char *adapt_rule_name(enum adapt_rule r)
+{
+	switch (r) {
+	case ADAPT_UPDOWN: return "updown";
+	case ADAPT_WEIGHTED: return "weighted";
+	case ADAPT_QUEST: return "quest";
+	}
+	return "?";
+}
+
 double adapt_axis_value(enum adapt_axis axis, double level)
 {
 	if (axis == ADAPT_AXIS_LINEAR)
@@ -427,6 +437,15 @@ void adapt_spec_clear(struct adapt_spec *s)
 	memset(s, 0, sizeof *s);
 }
 
+const struct adapt_spec *adapt_spec_find(const void *specs, size_t n, const char *name)
+{
+	const struct adapt_spec *v = specs;
+	for (size_t i = 0; i < n; i++)
+		if (v[i].name && name && !strcmp(v[i].name, name))
+			return &v[i];
+	return NULL;
+}
+
 size_t adapt_spec_nstairs(const struct adapt_spec *s, size_t nchoices)
 {
 	return s->nstarts * (s->per_category ? nchoices : 1);
@@ -444,7 +463,7 @@ int adapt_spec_expand(const struct adapt_spec *s, size_t nchoices, const struct 
 	size_t n = adapt_spec_nstairs(s, nchoices);
 	if (i >= n || s->nstarts == 0) {
 		snprintf(why, len, "staircase %zu does not exist", i);
-		return -1;
+		return ADAPT_BAD_PARAMS;
 	}
 	*p = s->base;
 	p->start = s->starts[i % s->nstarts];
@@ -465,7 +484,7 @@ int adapt_spec_expand(const struct adapt_spec *s, size_t nchoices, const struct 
 		snprintf(why, len, "no stimulus %s has a level usable on a %s axis",
 			 *choice >= 0 ? "of this staircase's category" : "of the block",
 			 s->base.axis == ADAPT_AXIS_LOG ? "log (above 0)" : "linear");
-		return -1;
+		return ADAPT_BAD_LEVELS;
 	}
 	if (!s->has_floor)
 		p->floor = nuse ? lo : NAN;
@@ -493,9 +512,9 @@ int adapt_spec_expand(const struct adapt_spec *s, size_t nchoices, const struct 
 		snprintf(why, len, "the %s %g is outside the level range [%g, %g]",
 			 p->rule == ADAPT_QUEST ? "prior mean" : "start level", p->start, p->floor,
 			 p->ceiling);
-		return -1;
+		return ADAPT_BAD_START;
 	}
-	return adapt_params_check(p, why, len);
+	return adapt_params_check(p, why, len) ? ADAPT_BAD_PARAMS : 0;
 }
 
 /* Categories with at least one usable item, in choice order; returns their count. */
@@ -512,22 +531,24 @@ static size_t usable_categories(const struct adapt_spec *s, size_t nchoices,
 	return n;
 }
 
-size_t adapt_plan_order(const struct adapt_spec *s, size_t nchoices,
-			const struct adapt_item *items, size_t nitems, gsl_rng *rng, int **stair,
-			int **choice)
+int adapt_plan_order(const struct adapt_spec *s, size_t nchoices, const struct adapt_item *items,
+		     size_t nitems, gsl_rng *rng, int **stair, int **choice, size_t *nout, char *why,
+		     size_t len)
 {
 	*stair = *choice = NULL;
+	*nout = 0;
 	size_t ns = adapt_spec_nstairs(s, nchoices);
-	if (ns == 0 || s->base.max_trials <= 0)
-		return 0;
+	if (ns == 0 || s->base.max_trials <= 0) {
+		snprintf(why, len, "the adaptive rule has no staircase or no trials");
+		return ADAPT_BAD_PARAMS;
+	}
 	int *fixed = xmalloc(ns * sizeof *fixed);
-	char why[160];
 	for (size_t i = 0; i < ns; i++) {
 		struct adapt_params p;
-		if (adapt_spec_expand(s, nchoices, items, nitems, i, &p, &fixed[i], why,
-				      sizeof why) < 0) {
+		int rc = adapt_spec_expand(s, nchoices, items, nitems, i, &p, &fixed[i], why, len);
+		if (rc) {
 			free(fixed);
-			return 0;
+			return rc;
 		}
 	}
 	int *cats = xmalloc((nchoices ? nchoices : 1) * sizeof *cats);
@@ -567,7 +588,8 @@ size_t adapt_plan_order(const struct adapt_spec *s, size_t nchoices,
 	free(fixed);
 	*stair = st;
 	*choice = ch;
-	return n;
+	*nout = n;
+	return 0;
 }
 
 /* ---- block runtime ------------------------------------------------------------------------- */
@@ -599,7 +621,7 @@ struct adapt_block *adapt_block_create(const struct adapt_spec *s, size_t nchoic
 	for (size_t i = 0; i < ns; i++) {
 		struct adapt_params p;
 		if (adapt_spec_expand(s, nchoices, items, nitems, i, &p, &b->stair_choice[i], why,
-				      len) < 0) {
+				      len)) {
 			adapt_block_destroy(b);
 			return NULL;
 		}

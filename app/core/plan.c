@@ -6,8 +6,9 @@
  * bits), serves every block in turn, so the same inputs give the same plan everywhere. The random
  * order is drawn trial by trial: each step picks a remaining trial uniformly among those whose
  * category keeps the rest of the block arrangeable within the run limit (see feasible()).
- * Adaptive blocks get one trial per selected row and repeat like the others, with stim = -1 and
- * staircase 0: the adaptive rule picks the image at run time. Called by `check`, `run`, the console. */
+ * Adaptive blocks get their trials from the adaptive module (adaptive_trials below): trials of
+ * interleaved staircases with stim = -1; the rule picks the image at run time. Called by `check`,
+ * `run`, the console. */
 #include "plan.h"
 
 #include <math.h>
@@ -18,6 +19,7 @@
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 
+#include "adapt.h"
 #include "frames.h"
 #include "geom.h"
 #include "protocol.h"
@@ -134,9 +136,62 @@ static int shuffle_limited(struct plan_trial *t, size_t n, int k, size_t nc, gsl
 	return rc;
 }
 
-static void block_trials(const struct protocol *p, const struct protocol_block *b, int bi,
-			 const struct stimlist *l, gsl_rng *rng, struct plan *pl,
-			 struct diag_list *d)
+struct adapt_item *plan_adaptive_items(const struct protocol *p, const struct stimlist *l,
+				       int proto_block, size_t *n)
+{
+	const struct protocol_block *b = &p->blocks[proto_block];
+	struct adapt_item *items = NULL;
+	*n = 0;
+	for (size_t i = 0; i < l->n; i++) {
+		const struct stim *s = &l->items[i];
+		if (!row_selected(b, l, s))
+			continue;
+		int choice = protocol_choice_index(p, s->category);
+		items = xrealloc(items, (*n + 1) * sizeof *items);
+		items[(*n)++] = (struct adapt_item){(int)i, choice < 0 ? 0 : choice,
+						    s->has_level ? s->level : NAN};
+	}
+	return items;
+}
+
+/* The trials of an adaptive block (the adaptive work's part of the plan): the staircases of its
+ * [adaptive NAME] section over the rows the block selects, in the order adapt_plan_order draws
+ * from RNG, each with stim = -1 until the rule picks the image at run time. Problems that need
+ * the list (a start or prior mean outside the levels offered, a category without usable levels)
+ * go to D. Returns the malloc'd trials and *N, or NULL. */
+static struct plan_trial *adaptive_trials(const struct protocol *p, const struct protocol_block *b,
+					  const struct stimlist *l, gsl_rng *rng, size_t *n,
+					  struct diag_list *d)
+{
+	const struct adapt_spec *as = adapt_spec_find(p->adaptive, p->nadaptive, b->adaptive);
+	if (!as)
+		return NULL;   /* reported by the protocol parser */
+	size_t ni;
+	struct adapt_item *items = plan_adaptive_items(p, l, (int)(b - p->blocks), &ni);
+	int *st, *ch;
+	char why[256];
+	int rc = adapt_plan_order(as, p->nchoices, items, ni, rng, &st, &ch, n, why, sizeof why);
+	free(items);
+	if (rc) {
+		int line = rc == ADAPT_BAD_START ? as->lines.start
+			   : rc == ADAPT_BAD_LEVELS ? (b->select_line ? b->select_line : b->line)
+						    : as->lines.section;
+		diag_add(d, DIAG_ERROR, p->path, line, "block '%s' (adaptive %s): %s", b->name,
+			 as->name, why);
+		return NULL;
+	}
+	struct plan_trial *t = xmalloc((*n ? *n : 1) * sizeof *t);
+	for (size_t k = 0; k < *n; k++)
+		t[k] = (struct plan_trial){.stim = -1, .choice = ch[k], .staircase = st[k]};
+	free(st);
+	free(ch);
+	return t;
+}
+
+/* Reports a filter on a column the list lacks, or one that selects nothing. Returns the number
+ * of rows selected (0 after a report). */
+static size_t block_selection(const struct protocol *p, const struct protocol_block *b,
+			      const struct stimlist *l, struct diag_list *d)
 {
 	for (size_t f = 0; f < b->nfilters; f++) {
 		char buf[64];
@@ -144,19 +199,42 @@ static void block_trials(const struct protocol *p, const struct protocol_block *
 			diag_add(d, DIAG_ERROR, p->path, b->select_line,
 				 "block '%s': the list has no column '%s' to select on", b->name,
 				 b->filters[f].column);
-			return;
+			return 0;
 		}
 	}
 	size_t nsel = 0;
 	for (size_t i = 0; i < l->n; i++)
 		nsel += row_selected(b, l, &l->items[i]);
-	if (!nsel) {
+	if (!nsel)
 		diag_add(d, DIAG_ERROR, p->path, b->select_line ? b->select_line : b->line,
 			 "block '%s' selects no rows of the list", b->name);
+	return nsel;
+}
+
+int plan_check_blocks(const struct protocol *p, const struct stimlist *l, struct diag_list *d)
+{
+	size_t errors0 = diag_count(d, DIAG_ERROR);
+	for (size_t b = 0; b < p->nblocks; b++)
+		block_selection(p, &p->blocks[b], l, d);
+	return diag_count(d, DIAG_ERROR) > errors0 ? -1 : 0;
+}
+
+static void block_trials(const struct protocol *p, const struct protocol_block *b, int bi,
+			 const struct stimlist *l, gsl_rng *rng, struct plan *pl,
+			 struct diag_list *d)
+{
+	size_t nsel = block_selection(p, b, l, d);
+	if (!nsel)
 		return;
+	size_t n;
+	struct plan_trial *t;
+	if (b->adaptive) {
+		if (!(t = adaptive_trials(p, b, l, rng, &n, d)))
+			return;
+		goto append;
 	}
-	size_t n = nsel * (size_t)b->repeats;
-	struct plan_trial *t = xmalloc(n * sizeof *t);
+	n = nsel * (size_t)b->repeats;
+	t = xmalloc(n * sizeof *t);
 	size_t k = 0;
 	for (int r = 0; r < b->repeats; r++)
 		for (size_t i = 0; i < l->n; i++) {
@@ -175,6 +253,7 @@ static void block_trials(const struct protocol *p, const struct protocol_block *
 		diag_add(d, DIAG_ERROR, p->path, b->line, "block '%s': no order of its %zu trials keeps "
 			 "runs of one category to max_run = %d", b->name, n, b->max_run);
 	}
+append:;
 	size_t first = pl->ntrials;
 	pl->trials = xrealloc(pl->trials, (pl->ntrials + n) * sizeof *pl->trials);
 	for (size_t i = 0; i < n; i++) {

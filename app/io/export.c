@@ -18,6 +18,7 @@
 
 #include "diag.h"
 #include "export.h"
+#include "rig.h"
 #include "store.h"
 #include "version.h"
 
@@ -557,6 +558,31 @@ static void bids_cell_text(struct buf *b, const char *v)
 		buf_str(b, "n/a");   /* BIDS "Tabular files": missing values are n/a */
 }
 
+/* Seconds from nanosecond clocks: nine decimals at most (the clocks' resolution), trailing zeros
+ * dropped, so 0.55028358 s is not printed as 0.5502835810000001. */
+static void buf_seconds(struct buf *b, double v)
+{
+	char tmp[48];
+	snprintf(tmp, sizeof tmp, "%.9f", v);
+	char *e = tmp + strlen(tmp);
+	while (e > tmp && e[-1] == '0')
+		*--e = '\0';
+	if (e > tmp && e[-1] == '.')
+		*--e = '\0';
+	if (!strcmp(tmp, "-0"))
+		strcpy(tmp, "0");
+	buf_str(b, tmp);
+}
+
+static void bids_cell_seconds(struct buf *b, bool has, double v)
+{
+	buf_chr(b, '\t');
+	if (has && isfinite(v))
+		buf_seconds(b, v);
+	else
+		buf_str(b, "n/a");
+}
+
 static void bids_cell_num(struct buf *b, bool has, double v)
 {
 	buf_chr(b, '\t');
@@ -713,11 +739,11 @@ static int bids_session(struct store *s, const struct store_session *ss, const c
 		}
 		bool timed = t->onset_ns != 0;
 		if (timed)
-			buf_num(&b, (double)(t->onset_ns - t0) / 1e9);
+			buf_seconds(&b, (double)(t->onset_ns - t0) / 1e9);
 		else
 			buf_str(&b, "n/a");
-		bids_cell_num(&b, timed && t->offset_ns > t->onset_ns,
-			      (double)(t->offset_ns - t->onset_ns) / 1e9);
+		bids_cell_seconds(&b, timed && t->offset_ns > t->onset_ns,
+				  (double)(t->offset_ns - t->onset_ns) / 1e9);
 		bids_cell_text(&b, t->category);
 		bids_cell_text(&b, t->image);
 		bids_cell_int(&b, true, t->block);
@@ -732,7 +758,7 @@ static int bids_session(struct store *s, const struct store_session *ss, const c
 		bids_cell_text(&b, t->response_key);
 		bids_cell_text(&b, t->response_category);
 		bids_cell_int(&b, t->correct >= 0, t->correct);
-		bids_cell_num(&b, t->has_rt, t->rt_ms / 1000.0);
+		bids_cell_seconds(&b, t->has_rt, t->rt_ms / 1000.0);
 		bids_cell_int(&b, true, t->timed_out);
 		bids_cell_int(&b, true, t->frames_planned);
 		bids_cell_int(&b, true, t->frames_actual);
@@ -772,6 +798,27 @@ done:
 	free(tsv);
 	free(json);
 	return ret;
+}
+
+/* A session whose presentation settings were not recorded gets them from its stored rig text. */
+static void fill_from_rig(struct store_session *ss)
+{
+	if (ss->distance_cm > 0 || !ss->rig_text)
+		return;
+	struct rig r;
+	struct diag_list d;
+	diag_init(&d);
+	if (rig_parse("rig", ss->rig_text, &r, &d) == 0) {
+		ss->screen_width_cm = r.width_cm;
+		ss->screen_height_cm = r.height_cm;
+		ss->screen_width_px = r.width_px;
+		ss->screen_height_px = r.height_px;
+		ss->distance_cm = r.distance_cm;
+		if (ss->nominal_hz <= 0)
+			ss->nominal_hz = r.refresh_hz;
+	}
+	rig_clear(&r);
+	diag_clear(&d);
 }
 
 int export_bids(struct store *s, const char *session, const char *subject, const char *dir,
@@ -866,6 +913,7 @@ int export_bids(struct store *s, const char *session, const char *subject, const
 						 v[i].id, v[i].subject);
 			goto done;
 		}
+		fill_from_rig(&v[i]);
 		char *task = bids_label(v[i].protocol_name, "task");
 		rc = bids_session(s, &v[i], dir, v[i].subject, ses[i], task, &stats.rows, err);
 		free(task);

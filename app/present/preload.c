@@ -16,8 +16,10 @@
 #include "diag.h"
 #include "display.h"
 
-/* Decoding threads. Two keep a two-core machine's decoder busy while the caller makes textures. */
-#define PRELOAD_WORKERS 2
+/* Decoding threads. One: decoding then never takes more than one core from the frame loop, and on a
+ * busy two-core machine a second worker measured slower (tests/bench/bench_present.sh). The code
+ * handles any number. */
+#define PRELOAD_WORKERS 1
 
 enum slot_state { SLOT_FREE, SLOT_QUEUED, SLOT_DECODING, SLOT_DECODED, SLOT_FAILED, SLOT_TEXTURE };
 

@@ -23,6 +23,7 @@
 #include <gsl/gsl_sort.h>
 #include <gsl/gsl_statistics_double.h>
 
+#include "adapt.h"
 #include "dclock.h"
 #include "display.h"
 #include "frames.h"
@@ -76,16 +77,28 @@ struct run_session {
 	bool *stored;            /* per planned trial */
 	int *next_bt;            /* per block: next free block_trial number for repeats */
 	int *runs;               /* per block */
+	bool *skipped;           /* per block: skipped by the experimenter or the observer */
 	int next_trial;          /* session trial number of the next trial shown */
 	uint64_t serial;         /* preload ids */
 	double refresh_hz;
 	struct run_refresh refresh;
 	bool failed, ended, interrupted;
+	bool live;               /* the session row is ours to end (run_open succeeded) */
 	const char *screenshot_dir;
 	bool shots_done;
 	int shot_epoch_seen[EPOCH_COUNT];
 	struct sigaction old_int, old_term;
 	bool handlers;
+
+	/* Adaptive blocks: the rule's state per plan block, built on the block's first pick (from
+	 * the stored trials on a resume); the pick of the current trial is kept until its update so
+	 * a trial shown again after a pause asks the rule only once. */
+	struct adapt_block **adapt;
+	int *adapt_run;          /* per block: s->runs[] when its state was built */
+	bool adapt_pending;
+	size_t adapt_pending_index;
+	int adapt_pending_stim;
+	double adapt_pending_req;
 };
 
 /* ---- helpers ---- */
@@ -267,7 +280,7 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		s->resp = responder_model_new(&spec);
 		observer_format(&spec, s->observer_text, sizeof s->observer_text);
 	}
-	s->paced = s->keyboard && o->observer_paced;
+	s->paced = s->keyboard && !o->no_observer_screens;
 	if (s->proto.mask == MASK_NOISE) {
 		s->mask = display_texture_noise(s->disp, s->plan.stim_px, s->plan.stim_px,
 						s->plan.stim_px / 32 + 1, s->plan.seed, e, sizeof e);
@@ -325,6 +338,14 @@ static int mark_stored(struct run_session *s, char **err)
 			s->next_bt[t->block] = t->block_trial + 1;
 		if (t->repeat_of < 0 && t->block_trial >= 0 && (size_t)t->block_trial < b->ntrials)
 			s->stored[b->first + (size_t)t->block_trial] = true;
+		/* The model observer answers the stored trials again (discarding the answers) so
+		 * its seeded generator stands where the interrupted run left it: the resumed
+		 * session then gets the answers an uninterrupted one would have got. */
+		if (s->resp && s->resp->is_model) {
+			struct responder_trial rt = {(int)s->proto.nchoices, t->choice, t->has_level,
+						     t->level};
+			responder_begin(s->resp, &rt);
+		}
 	}
 	store_trials_free(rows, n);
 	return 0;
@@ -378,6 +399,7 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 	s->stored = xcalloc(s->plan.ntrials + 1, sizeof *s->stored);
 	s->next_bt = xcalloc(s->plan.nblocks + 1, sizeof *s->next_bt);
 	s->runs = xcalloc(s->plan.nblocks + 1, sizeof *s->runs);
+	s->skipped = xcalloc(s->plan.nblocks + 1, sizeof *s->skipped);
 	for (size_t b = 0; b < s->plan.nblocks; b++)
 		s->next_bt[b] = (int)s->plan.blocks[b].ntrials;
 	if (open_presenter(s, o, d, err))
@@ -418,6 +440,7 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 		s->handlers = true;
 	}
 	run_stop_flag = 0;
+	s->live = true;
 	return s;
 fail:
 	{
@@ -508,6 +531,8 @@ size_t run_next_block(const struct run_session *s)
 {
 	for (size_t b = 0; b < s->plan.nblocks; b++) {
 		const struct plan_block *pb = &s->plan.blocks[b];
+		if (s->skipped[b])
+			continue;
 		for (size_t k = 0; k < pb->ntrials; k++)
 			if (!s->stored[pb->first + k])
 				return b;
@@ -522,6 +547,7 @@ int run_block_skip(struct run_session *s, size_t i, char **err)
 		return -1;
 	}
 	s->runs[i]++;
+	s->skipped[i] = true;
 	return store_event(s->store, s->ss.id, "skip", pblock(s, i)->name, err);
 }
 
@@ -677,28 +703,127 @@ static enum flow break_screen(struct blockrun *br, const char *title, char **err
 	return FLOW_STOP;
 }
 
-/* ADAPTIVE HOOK 1 — before a trial whose plan_trial.staircase >= 0. The adaptive module chooses
- * the stimulus here: it fills REC->stim, REC->choice, REC->has_level/level and
- * REC->level_requested from the state of staircase PT->staircase of block REC->block (state it can
- * rebuild from the stored trials on a resume). Returns 0, or -1 with *ERR. Until the adaptive
- * module is wired in, adaptive blocks are refused with a message. */
+/* The adaptive state of plan block BI, built on first use: the staircases of its [adaptive]
+ * section over the rows it selects, then (first run of the block) the session's stored trials of
+ * the block replayed through them in plan order, so a resumed session continues every staircase
+ * where it was. A block run again (every planned trial stored) starts fresh staircases. Returns
+ * NULL with *ERR. */
+static struct adapt_block *adaptive_state(struct run_session *s, size_t bi, bool again, char **err)
+{
+	if (!s->adapt) {
+		s->adapt = xcalloc(s->plan.nblocks + 1, sizeof *s->adapt);
+		s->adapt_run = xcalloc(s->plan.nblocks + 1, sizeof *s->adapt_run);
+	}
+	if (s->adapt[bi] && s->adapt_run[bi] == s->runs[bi])
+		return s->adapt[bi];
+	adapt_block_destroy(s->adapt[bi]);
+	s->adapt[bi] = NULL;
+	const struct plan_block *pb = &s->plan.blocks[bi];
+	const struct protocol_block *prb = pblock(s, bi);
+	const struct adapt_spec *as = adapt_spec_find(s->proto.adaptive, s->proto.nadaptive,
+						      prb->adaptive);
+	if (!as) {
+		*err = xasprintf("block '%s' names no adaptive section", prb->name);
+		return NULL;
+	}
+	size_t ni;
+	struct adapt_item *items = plan_adaptive_items(&s->proto, &s->list, pb->proto_block, &ni);
+	char why[256];
+	struct adapt_block *ab = adapt_block_create(as, s->proto.nchoices, items, ni, s->plan.seed,
+						    (int)bi, why, sizeof why);
+	free(items);
+	if (!ab) {
+		*err = xasprintf("block '%s': %s", prb->name, why);
+		return NULL;
+	}
+	if (!again) {
+		struct store_trial *rows = NULL;
+		size_t n = 0;
+		if (store_trials_load(s->store, s->ss.id, &rows, &n, err)) {
+			adapt_block_destroy(ab);
+			return NULL;
+		}
+		struct adapt_outcome *done = xmalloc((n ? n : 1) * sizeof *done);
+		int *st = xmalloc((pb->ntrials ? pb->ntrials : 1) * sizeof *st);
+		int *ch = xmalloc((pb->ntrials ? pb->ntrials : 1) * sizeof *ch);
+		size_t nd = 0, at;
+		/* First-run trials of this block in plan order (block_trial is the plan index). */
+		for (size_t k = 0; k < pb->ntrials; k++) {
+			st[k] = s->plan.trials[pb->first + k].staircase;
+			ch[k] = s->plan.trials[pb->first + k].choice;
+			for (size_t i = 0; i < n; i++)
+				if (rows[i].block == (int)bi && rows[i].repeat_of < 0 &&
+				    rows[i].block_trial == (int)k)
+					done[nd++] = (struct adapt_outcome){rows[i].staircase,
+									    rows[i].stim,
+									    rows[i].level,
+									    rows[i].correct};
+		}
+		int rc = adapt_block_replay(ab, st, ch, pb->ntrials, done, nd, &at, why, sizeof why);
+		store_trials_free(rows, n);
+		free(done);
+		free(st);
+		free(ch);
+		if (rc) {
+			*err = xasprintf("block '%s': the stored trials do not fit its staircases (%s)",
+					 prb->name, why);
+			adapt_block_destroy(ab);
+			return NULL;
+		}
+	}
+	s->adapt[bi] = ab;
+	s->adapt_run[bi] = s->runs[bi];
+	s->adapt_pending = false;
+	return ab;
+}
+
+/* ADAPTIVE HOOK 1 — before a trial whose plan_trial.staircase >= 0: the adaptive rule picks the
+ * stimulus (REC->stim) and records the level it asked for (REC->level_requested); the caller
+ * fills the level shown from the stimulus. Returns 0, 1 when the trial's staircase has finished
+ * (the trial is skipped, nothing is shown or stored), or -1 with *ERR. */
 static int run_adaptive_pick(struct run_session *s, const struct plan_trial *pt,
 			     struct trial_record *rec, char **err)
 {
-	(void)rec;
-	*err = xasprintf("block '%s' chooses its levels adaptively (staircase %d), which this build "
-			 "cannot run", pblock(s, (size_t)pt->block)->name, pt->staircase);
-	return -1;
+	size_t bi = (size_t)rec->block;
+	bool again = rec->block_trial >= (int)s->plan.blocks[bi].ntrials;
+	struct adapt_block *ab = adaptive_state(s, bi, again, err);
+	if (!ab)
+		return -1;
+	size_t index = (size_t)(pt - s->plan.trials);
+	if (s->adapt_pending && s->adapt_pending_index == index) {
+		rec->stim = s->adapt_pending_stim;
+		rec->level_requested = s->adapt_pending_req;
+		return 0;
+	}
+	int stim;
+	double req;
+	int rc = adapt_block_next(ab, pt->staircase, pt->choice, &stim, &req);
+	if (rc < 0) {
+		*err = xasprintf("block '%s': category %s has no level for staircase %d",
+				 pblock(s, bi)->name, s->proto.choices[pt->choice].category,
+				 pt->staircase);
+		return -1;
+	}
+	if (rc == 1)
+		return 1;
+	rec->stim = stim;
+	rec->level_requested = req;
+	s->adapt_pending = true;
+	s->adapt_pending_index = index;
+	s->adapt_pending_stim = stim;
+	s->adapt_pending_req = req;
+	return 0;
 }
 
-/* ADAPTIVE HOOK 2 — after a trial of an adaptive staircase has been stored: the adaptive module
- * updates staircase REC->staircase with the outcome (REC->correct, REC->timed_out, REC->level).
- * Trials with timing faults are reported too (REC->timing_ok); the rule decides what they count
- * for. Nothing to do until the adaptive module is wired in. */
+/* ADAPTIVE HOOK 2 — after a trial of an adaptive staircase has been stored: its staircase takes
+ * the outcome (the level shown; no response counts as incorrect; a trial with a timing fault
+ * counts as shown, since adaptive blocks do not repeat trials). */
 static void run_adaptive_update(struct run_session *s, const struct trial_record *rec)
 {
-	(void)s;
-	(void)rec;
+	s->adapt_pending = false;
+	if (s->adapt && s->adapt[rec->block])
+		adapt_block_update(s->adapt[rec->block], rec->staircase, rec->stim, rec->level,
+				   rec->correct);
 }
 
 static void remember(struct blockrun *br, const struct trial_record *r)
@@ -798,6 +923,7 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 	}
 	size_t qi = 0;
 	size_t requested = 0;
+	size_t rested_at = 0;      /* trial count at the last rest break */
 	while (fl == FLOW_ON && qi < nq) {
 		if (run_stop_requested()) {
 			fl = FLOW_STOP;
@@ -814,10 +940,10 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 				break;
 			}
 		}
-		if (s->proto.break_every > 0 && br.sum.trials > 0 &&
-		    br.sum.trials % (size_t)s->proto.break_every == 0 && qi > 0 && q[qi - 1].id != UINT64_MAX) {
+		if (s->proto.break_every > 0 && br.sum.trials > 0 && br.sum.trials != rested_at &&
+		    br.sum.trials % (size_t)s->proto.break_every == 0) {
+			rested_at = br.sum.trials;
 			fl = break_screen(&br, "Rest a moment", err);
-			q[qi - 1].id = UINT64_MAX;   /* this break is done */
 			if (fl != FLOW_ON)
 				break;
 		}
@@ -834,7 +960,17 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 		rec.level_requested = NAN;
 		rec.repeat_of = cur->repeat_of;
 		if (pt->staircase >= 0) {
-			if (run_adaptive_pick(s, pt, &rec, err)) {
+			int pick = run_adaptive_pick(s, pt, &rec, err);
+			if (pick == 1) {
+				/* The staircase has finished: the planned trial is not shown. */
+				if (cur->repeat_of < 0 && !repeat_run)
+					s->stored[cur->plan_index] = true;
+				cur->id = UINT64_MAX;   /* no texture; no second rest break */
+				br.total--;
+				qi++;
+				continue;
+			}
+			if (pick) {
 				fl = FLOW_END;
 				s->failed = true;
 				break;
@@ -897,7 +1033,7 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 		br.sum.timeouts += rec.timed_out;
 		if (!rec.timing_ok) {
 			br.sum.faults++;
-			if (prb->repeat_faults && cur->repeat_of < 0) {
+			if (prb->repeat_faults && cur->repeat_of < 0 && !prb->adaptive) {
 				if (nq == capq) {
 					capq *= 2;
 					q = xrealloc(q, capq * sizeof *q);
@@ -931,7 +1067,7 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 	}
 	/* Release whatever the look-ahead still holds. */
 	for (size_t k = qi; k < nq; k++)
-		if (q[k].id && q[k].id != UINT64_MAX)
+		if (q[k].id)
 			preload_release(s->pre, q[k].id);
 	if (run_stop_requested() && fl == FLOW_ON)
 		fl = FLOW_STOP;
@@ -943,6 +1079,8 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 	}
 	if (result == RUN_BLOCK_ENDED)
 		s->ended = true;
+	if (result == RUN_BLOCK_SKIPPED)
+		s->skipped[bi] = true;
 	if (result == RUN_BLOCK_INTERRUPTED)
 		s->interrupted = true;
 	if (!s->failed) {
@@ -982,11 +1120,7 @@ enum run_block_result run_all(struct run_session *s, run_progress_fn progress, v
 		if (on_block)
 			on_block(&sum, ctx);
 		if (r == RUN_BLOCK_SKIPPED) {
-			/* The rest of a skipped block is not shown; mark it so run_next_block moves on. */
-			const struct plan_block *pb = &s->plan.blocks[b];
-			for (size_t k = 0; k < pb->ntrials; k++)
-				s->stored[pb->first + k] = true;
-			r = RUN_BLOCK_DONE;
+			r = RUN_BLOCK_DONE;   /* run_next_block passes over it now */
 			continue;
 		}
 		if (r != RUN_BLOCK_DONE)
@@ -1001,11 +1135,12 @@ int run_close(struct run_session *s, char **err)
 	if (!s)
 		return 0;
 	int rc = 0;
-	if (s->store && s->ss.id[0] && s->have_plan && s->stored) {
+	if (s->live) {
 		enum store_status st = STORE_COMPLETE;
+		/* Complete: every planned trial stored, except in blocks deliberately skipped. */
 		size_t done = 0;
 		for (size_t k = 0; k < s->plan.ntrials; k++)
-			done += s->stored[k];
+			done += s->stored[k] || s->skipped[s->plan.trials[k].block];
 		if (s->interrupted || run_stop_requested())
 			st = STORE_INTERRUPTED;
 		else if (s->failed || s->ended || done < s->plan.ntrials)
@@ -1024,6 +1159,10 @@ int run_close(struct run_session *s, char **err)
 	display_close(s->disp);
 	store_close(s->store);
 	store_session_clear(&s->ss);
+	for (size_t b = 0; s->adapt && b < s->plan.nblocks; b++)
+		adapt_block_destroy(s->adapt[b]);
+	free(s->adapt);
+	free(s->adapt_run);
 	if (s->have_plan)
 		plan_clear(&s->plan);
 	if (s->have_list)
@@ -1035,6 +1174,7 @@ int run_close(struct run_session *s, char **err)
 	free(s->stored);
 	free(s->next_bt);
 	free(s->runs);
+	free(s->skipped);
 	free(s);
 	return rc;
 }

@@ -122,6 +122,7 @@ echo "; edited after the session began" >>"$P"
 expect_exit "resume after a protocol edit refused" 1 "$TACHIST" run "$P" --resume \
   "$(q "$WORK/e.db" 'select id from sessions')" --db "$WORK/e.db" --headless --observer "$MODEL"
 check "refusal names the protocol change" grep -q 'changed since session' "$WORK/last.err"
+expect_eq "a refused resume leaves the session interrupted" interrupted "$(q "$WORK/e.db" 'select status from sessions')"
 mkproto "$P" "$A/stimuli.csv" 2
 
 # 6. An image missing at start: refused with LIST:LINE, no session created.

@@ -118,20 +118,24 @@ check "a corrupt image is named" grep -q "list.csv:43: unreadable: .*corrupt.png
 
 # --- 16-bit, grey, grey+alpha and RGBA images are reported, not refused -----------------------
 B=$WORK/bad
-printf 'image,category\nrgb.png,a\ndeep16.png,a\ngrey.png,a\ngreyalpha.png,a\nopaque_rgba.png,a\nnotes.png,a\ntruncated.png,a\nmissing.png,a\n' >"$B/list.csv"
+printf 'image,category\nrgb.png,a\ndeep16.png,a\ngrey.png,a\ngreykey.png,a\nrgbkey.png,a\npalkey.png,a\ngreyalpha.png,a\nopaque_rgba.png,a\nnotes.png,a\ntruncated.png,a\nmissing.png,a\n' >"$B/list.csv"
 expect_exit "audit of odd formats exits 1 (flags), no crash" 1 "$TACHIST" stimuli audit "$B/list.csv" --json --rig "$WORK/rig.ini" --size-deg 0.5
 cp "$WORK/last.out" "$WORK/bad.json"
+check "a grey PNG with a tRNS key is refused with a reason" grep -q "greykey.png is a grey PNG with a transparent grey level" "$WORK/bad.json"
 check "channels, bit depth and alpha as stored" $PY - "$WORK/bad.json" <<'EOF'
 import json, sys
 rows = {r["image"]: r for r in json.load(open(sys.argv[1]))["rows"]}
+# RGB and palette PNGs with a tRNS chunk keep 3 channels and can be transparent.
 want = {"rgb.png": (3, 8, False), "deep16.png": (3, 16, False), "grey.png": (1, 8, False),
+        "rgbkey.png": (3, 8, True), "palkey.png": (3, 8, True),
         "greyalpha.png": (2, 8, True), "opaque_rgba.png": (4, 8, True)}
 ok = all((rows[k]["channels"], rows[k]["bits"], rows[k]["alpha"]) == v for k, v in want.items())
 # A 16-bit file holding v·257 decodes to v: same pixels as the 8-bit file (exact duplicate).
 ok = ok and rows["deep16.png"]["sha256"] == rows["rgb.png"]["sha256"]
-ok = ok and all(not rows[k]["readable"] for k in ("notes.png", "truncated.png", "missing.png"))
-# An opaque RGBA file holds the same pixels as the RGB one: a duplicate, and nothing else.
-ok = ok and "translucent" in rows["greyalpha.png"]["flags"] and rows["opaque_rgba.png"]["flags"] == ["duplicate"]
+ok = ok and all(not rows[k]["readable"] for k in ("notes.png", "truncated.png", "missing.png", "greykey.png"))
+# Keyed and alpha transparency is found; an opaque RGBA file holding the RGB pixels is a duplicate.
+ok = ok and all("translucent" in rows[k]["flags"] for k in ("greyalpha.png", "rgbkey.png", "palkey.png"))
+ok = ok and "duplicate" in rows["opaque_rgba.png"]["flags"] and "translucent" not in rows["opaque_rgba.png"]["flags"]
 sys.exit(0 if ok else 1)
 EOF
 
@@ -168,6 +172,10 @@ expect_exit "import without a pattern" 1 "$TACHIST" stimuli import "$T" --out "$
 check "no level column without a pattern" grep -q '^"image","category"' "$WORK/imp3.csv"
 expect_exit "a pattern without {level} is a usage error" 2 "$TACHIST" stimuli import "$T" --out "$WORK/x.csv" --level-from '{source}'
 expect_exit "an unknown placeholder is a usage error" 2 "$TACHIST" stimuli import "$T" --out "$WORK/x.csv" --level-from '{lvl}'
+"$TACHIST" stimuli import "$SET" --out "$SET/kettle/self.csv" >/dev/null
+expect_exit "import again with the list inside the tree" 0 "$TACHIST" stimuli import "$SET" --out "$SET/kettle/self.csv"
+check "the list being written is not taken as an image" sh -c "! grep -q 'self.csv: skipped' '$WORK/last.out'"
+rm -f "$SET/kettle/self.csv"
 expect_exit "import of a missing folder exits 1" 1 "$TACHIST" stimuli import "$WORK/nowhere" --out "$WORK/x.csv"
 
 # --- controls -------------------------------------------------------------------------------
@@ -211,11 +219,14 @@ sys.path.insert(0, "tests/tools"); import stimset
 stimset.write_png(sys.argv[1] + "/white.png", np.full((32, 32, 3), 255))
 stimset.write_png(sys.argv[1] + "/black.png", np.zeros((32, 32, 3)))
 EOF
-printf 'image,category,level,source\nrgb.png,a,1,gone.png\nrgb.png,b,1,small.png\nblack.png,c,55.4,white.png\n' >"$C/list.csv"
+printf 'image,category,level,source\nrgb.png,a,1,gone.png\nrgb.png,b,1,small.png\nblack.png,c,55.4,white.png\nrgb.png,../evil,1,black.png\nrgb.png,d,0,rgb.png\n' >"$C/list.csv"
 expect_exit "controls with bad rows exit 1" 1 "$TACHIST" stimuli controls "$C/list.csv" --out "$WORK/cbad-out"
 check "a missing source is named" grep -q "list.csv:2: rgb.png: its source cannot be read: .*gone.png" "$WORK/last.out"
 check "a source of another size is named" grep -q "list.csv:3: rgb.png is 32x32 but its source is 16x16" "$WORK/last.out"
 check "an unreachable budget is reported" grep -q "list.csv:4: black.png: the L2 budget .* cannot be reached" "$WORK/last.out"
+check "a category cannot lead outside the output folder" test -f "$WORK/cbad-out/_._evil/rgb_rand.png"
+check "nothing written beside the output folder" test ! -e "$WORK/evil"
+check "a budget of 0 needs no control" grep -q "list.csv:6: rgb.png: note: budget 0" "$WORK/last.out"
 expect_exit "controls --budget level with an unreachable level" 1 "$TACHIST" stimuli controls "$C/list.csv" --out "$WORK/cbad-out2" --budget level
 expect_exit "controls without --out is a usage error" 2 "$TACHIST" stimuli controls "$SET/list.csv"
 expect_exit "an unknown action is a usage error" 2 "$TACHIST" stimuli frob

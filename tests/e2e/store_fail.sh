@@ -50,3 +50,33 @@ for where in rw ro; do
 done
 chmod 755 "$WORK/ro"
 expect_eq "the pool got both read-only sessions" 2 "$(sqlite3 "$WORK/rw/pool.db" 'SELECT count(*) FROM sessions')"
+# -- the same through `tachist run` ----------------------------------------------------------------
+RIG=$ROOT/assets-demo/rig.ini
+sed -e "s|^list = .*|list = $ROOT/assets-demo/stimuli.csv|" -e 's/^break_every.*//' \
+    -e 's/^fixation_ms = .*/fixation_ms = 100/; s/^iti_ms = .*/iti_ms = 100/' \
+    -e 's/^select = exemplar=.*/select = exemplar=3,4/' protocols/demo.ini >"$WORK/p.ini"
+mkdir "$WORK/tiny2"
+cat >"$WORK/runfull.sh" <<SHEOF
+mount -t tmpfs -o size=448k tmpfs "$WORK/tiny2" || exit 77
+"$TACHIST" run "$WORK/p.ini" --rig "$RIG" --headless --observer model:seed=1 --seed 5 --subject FULL --db "$WORK/tiny2/r.db" >"$WORK/run.out" 2>"$WORK/run.err"
+echo "rc \$?" >"$WORK/runfull.res"
+sqlite3 "$WORK/tiny2/r.db" 'PRAGMA integrity_check' >>"$WORK/runfull.res" 2>&1
+sqlite3 "$WORK/tiny2/r.db" "SELECT count(*), coalesce(max(trial) + 1, 0), (SELECT status FROM sessions) FROM trials" >>"$WORK/runfull.res" 2>&1
+SHEOF
+unshare -rm sh "$WORK/runfull.sh"; rc=$?
+if [ "$rc" = 77 ] || [ ! -s "$WORK/runfull.res" ]; then
+  ok "run on a full disk: skipped (cannot mount a tmpfs in a private namespace here) # SKIP"
+else
+  expect_eq "run on a full disk stops with exit 1" "rc 1" "$(sed -n 1p "$WORK/runfull.res")"
+  check "run names the full disk" grep -q "disk is full" "$WORK/run.err"
+  expect_eq "its database checks ok" ok "$(sed -n 2p "$WORK/runfull.res")"
+  res=$(sed -n 3p "$WORK/runfull.res")
+  n=${res%%|*}
+  check "trials were stored before the disk filled ($n)" test "${n:-0}" -gt 0
+  expect_eq "every stored trial is contiguous and the session is aborted" "$n|$n|aborted" "$res"
+fi
+cp "$WORK/rw/x.db" "$WORK/rw/run.db" 2>/dev/null || "$FILL" "$WORK/rw/run.db" 1 2 >/dev/null
+chmod 444 "$WORK/rw/run.db"
+as_user "$TACHIST" run "$WORK/p.ini" --rig "$RIG" --headless --observer model:seed=1 --subject RO --db "$WORK/rw/run.db" >"$WORK/run.out" 2>"$WORK/run.err"
+expect_eq "run on a read-only database fails" 1 $?
+check "run says the database is read-only" grep -q "read-only" "$WORK/run.err"

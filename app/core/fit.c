@@ -1,0 +1,641 @@
+/* fit — maximum-likelihood psychometric fits and the parametric bootstrap (see fit.h).
+ *
+ * The points are copied, sorted by level and merged (equal levels pooled) into a small model
+ * struct. The search works on unconstrained parameters θ:
+ *   logistic, normal:  θ0 = α,      θ1 = ln β
+ *   weibull:           θ0 = ln α,   θ1 = ln β      (levels ≤ 0 give F = 0)
+ *   λ free:            θ2 with λ = λmax·(1 + sin θ2)/2, which keeps λ in [0, λmax] and lets the
+ *                      optimum sit on either bound with a zero derivative.
+ * The main fit runs Nelder–Mead (GSL nmsimplex2) from a grid of starts and restarts from the best;
+ * bootstrap refits start at the ML estimate and use BFGS with the analytic gradient, falling back
+ * to Nelder–Mead. Bootstrap sample b draws from its own mt19937 seeded from (seed, b), so the
+ * result does not depend on the number of threads. */
+#include "fit.h"
+
+#include <math.h>
+#include <pthread.h>
+#include <stdlib.h>
+#include <stdio.h>
+#include <string.h>
+
+#include <gsl/gsl_cdf.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_multimin.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <gsl/gsl_sort.h>
+#include <gsl/gsl_statistics_double.h>
+
+#include "diag.h"
+
+#define P_EPS 1e-12
+
+struct model {
+	size_t n;
+	double *x, *logx;          /* levels and their logs (Weibull; −inf for x ≤ 0) */
+	unsigned long *nt, *k;
+	enum psyfn_shape shape;
+	double gamma;
+	bool lapse_free;
+	double lapse, lapse_max;
+	size_t npar;
+};
+
+void fit_opts_default(struct fit_opts *o, int m)
+{
+	memset(o, 0, sizeof *o);
+	o->m = m;
+	o->shape = PSYFN_WEIBULL;
+	o->lapse_free = true;
+	o->lapse = 0;
+	o->lapse_max = 0.06;
+	o->pc_threshold = m >= 2 ? 1.0 / m + (1.0 - 1.0 / m) / 2 : 0.75;
+	o->nboot = 1000;
+	o->seed = 1;
+	o->conf = 0.95;
+	o->threads = 1;
+}
+
+int fit_lapse_parse(const char *s, struct fit_opts *o)
+{
+	if (!strcmp(s, "free")) {
+		o->lapse_free = true;
+		return 0;
+	}
+	char *end;
+	double v = strtod(s, &end);
+	if (end == s || *end || !(v >= 0 && v < 1))
+		return -1;
+	o->lapse_free = false;
+	o->lapse = v;
+	return 0;
+}
+
+/* θ -> α, β, λ. */
+static void decode(const struct model *md, const double *th, double *a, double *b, double *l)
+{
+	*a = md->shape == PSYFN_WEIBULL ? exp(th[0]) : th[0];
+	*b = exp(th[1]);
+	*l = md->lapse_free ? md->lapse_max * (1 + sin(th[2])) / 2 : md->lapse;
+}
+
+/* F, dF/dθ0 and dF/dθ1 at point I. */
+static double core(const struct model *md, size_t i, const double *th, double *d0, double *d1)
+{
+	double b = exp(th[1]);
+	if (md->shape == PSYFN_WEIBULL) {
+		if (md->logx[i] == -INFINITY) {
+			*d0 = *d1 = 0;
+			return 0;
+		}
+		double t = md->logx[i] - th[0];
+		double u = exp(b * t);
+		double e = exp(-u);
+		*d0 = e * (-b * u);
+		*d1 = e * (u * b * t);
+		return -expm1(-u);
+	}
+	double z = (md->x[i] - th[0]) / b, F, f;
+	if (md->shape == PSYFN_LOGISTIC) {
+		F = 1.0 / (1.0 + exp(-z));
+		f = F * (1 - F);
+	} else {
+		F = gsl_cdf_ugaussian_P(z);
+		f = exp(-0.5 * z * z) * 0.3989422804014327;   /* φ(z) = e^(−z²/2)/√(2π) */
+	}
+	*d0 = -f / b;
+	*d1 = -f * z;
+	return F;
+}
+
+/* Negative log-likelihood at θ, and its gradient into G when G is not NULL. */
+static double nll(const struct model *md, const double *th, double *g)
+{
+	double a, b, l;
+	decode(md, th, &a, &b, &l);
+	(void)a;
+	(void)b;
+	double s = 1 - md->gamma - l;
+	double dl = md->lapse_free ? md->lapse_max * cos(th[2]) / 2 : 0;
+	double sum = 0;
+	if (g)
+		g[0] = g[1] = g[2] = 0;
+	for (size_t i = 0; i < md->n; i++) {
+		double d0, d1;
+		double F = core(md, i, th, &d0, &d1);
+		double p = md->gamma + s * F;
+		if (p < P_EPS)
+			p = P_EPS;
+		if (p > 1 - P_EPS)
+			p = 1 - P_EPS;
+		double k = (double)md->k[i], nk = (double)(md->nt[i] - md->k[i]);
+		sum -= k * log(p) + nk * log1p(-p);
+		if (g) {
+			double w = -(k / p - nk / (1 - p));
+			g[0] += w * s * d0;
+			g[1] += w * s * d1;
+			g[2] += w * (-F) * dl;
+		}
+	}
+	return sum;
+}
+
+static double mm_f(const gsl_vector *v, void *p)
+{
+	double th[3] = {0, 0, 0};
+	for (size_t i = 0; i < v->size; i++)
+		th[i] = gsl_vector_get(v, i);
+	double r = nll(p, th, NULL);
+	return isfinite(r) ? r : GSL_POSINF;
+}
+
+static void mm_df(const gsl_vector *v, void *p, gsl_vector *g)
+{
+	double th[3] = {0, 0, 0}, gg[3];
+	for (size_t i = 0; i < v->size; i++)
+		th[i] = gsl_vector_get(v, i);
+	nll(p, th, gg);
+	for (size_t i = 0; i < v->size; i++)
+		gsl_vector_set(g, i, gg[i]);
+}
+
+static void mm_fdf(const gsl_vector *v, void *p, double *f, gsl_vector *g)
+{
+	*f = mm_f(v, p);
+	mm_df(v, p, g);
+}
+
+/* Nelder–Mead from TH (updated in place). Returns true on convergence; *VAL gets the minimum. */
+static bool nm_search(const struct model *md, double *th, int maxit, double tol, double *val)
+{
+	size_t np = md->npar;
+	gsl_multimin_function fn = {mm_f, np, (void *)md};
+	gsl_vector *x = gsl_vector_alloc(np), *step = gsl_vector_alloc(np);
+	double steps[3] = {md->shape == PSYFN_WEIBULL ? 0.2 : 0.0, 0.3, 0.5};
+	if (md->shape != PSYFN_WEIBULL) {
+		double r = md->x[md->n - 1] - md->x[0];
+		steps[0] = 0.1 * (r > 0 ? r : 1);
+	}
+	for (size_t i = 0; i < np; i++) {
+		gsl_vector_set(x, i, th[i]);
+		gsl_vector_set(step, i, steps[i]);
+	}
+	gsl_multimin_fminimizer *s = gsl_multimin_fminimizer_alloc(gsl_multimin_fminimizer_nmsimplex2, np);
+	gsl_multimin_fminimizer_set(s, &fn, x, step);
+	int status = GSL_CONTINUE;
+	for (int it = 0; it < maxit && status == GSL_CONTINUE; it++) {
+		if (gsl_multimin_fminimizer_iterate(s) != GSL_SUCCESS)
+			break;
+		status = gsl_multimin_test_size(gsl_multimin_fminimizer_size(s), tol);
+	}
+	for (size_t i = 0; i < np; i++)
+		th[i] = gsl_vector_get(s->x, i);
+	*val = s->fval;
+	gsl_multimin_fminimizer_free(s);
+	gsl_vector_free(x);
+	gsl_vector_free(step);
+	return status == GSL_SUCCESS && isfinite(*val);
+}
+
+/* BFGS with the analytic gradient from TH. Returns true on convergence. */
+static bool bfgs_search(const struct model *md, double *th, double *val)
+{
+	size_t np = md->npar;
+	gsl_multimin_function_fdf fn = {mm_f, mm_df, mm_fdf, np, (void *)md};
+	gsl_vector *x = gsl_vector_alloc(np);
+	for (size_t i = 0; i < np; i++)
+		gsl_vector_set(x, i, th[i]);
+	gsl_multimin_fdfminimizer *s =
+		gsl_multimin_fdfminimizer_alloc(gsl_multimin_fdfminimizer_vector_bfgs2, np);
+	gsl_multimin_fdfminimizer_set(s, &fn, x, 0.05, 0.1);
+	double ntot = 0;
+	for (size_t i = 0; i < md->n; i++)
+		ntot += (double)md->nt[i];
+	double gtol = 1e-6 * (1 + ntot);
+	int status = gsl_multimin_test_gradient(s->gradient, gtol);
+	for (int it = 0; it < 200 && status == GSL_CONTINUE; it++) {
+		if (gsl_multimin_fdfminimizer_iterate(s) != GSL_SUCCESS)
+			break;
+		status = gsl_multimin_test_gradient(s->gradient, gtol);
+	}
+	bool ok = status == GSL_SUCCESS && isfinite(s->f);
+	if (ok) {
+		for (size_t i = 0; i < np; i++)
+			th[i] = gsl_vector_get(s->x, i);
+		*val = s->f;
+	}
+	gsl_multimin_fdfminimizer_free(s);
+	gsl_vector_free(x);
+	return ok;
+}
+
+static int cmp_point(const void *a, const void *b)
+{
+	double x = ((const struct fit_point *)a)->level, y = ((const struct fit_point *)b)->level;
+	return (x > y) - (x < y);
+}
+
+/* Builds the model from the points: sorted, merged, empty points dropped. */
+static void model_init(struct model *md, const struct fit_point *pts, size_t npts,
+		       const struct fit_opts *o)
+{
+	memset(md, 0, sizeof *md);
+	struct fit_point *v = xmalloc((npts ? npts : 1) * sizeof *v);
+	if (npts)
+		memcpy(v, pts, npts * sizeof *v);
+	qsort(v, npts, sizeof *v, cmp_point);
+	md->x = xmalloc((npts ? npts : 1) * sizeof *md->x);
+	md->logx = xmalloc((npts ? npts : 1) * sizeof *md->logx);
+	md->nt = xmalloc((npts ? npts : 1) * sizeof *md->nt);
+	md->k = xmalloc((npts ? npts : 1) * sizeof *md->k);
+	for (size_t i = 0; i < npts; i++) {
+		if (v[i].n == 0)
+			continue;
+		if (md->n > 0 && md->x[md->n - 1] == v[i].level) {
+			md->nt[md->n - 1] += v[i].n;
+			md->k[md->n - 1] += v[i].k;
+			continue;
+		}
+		md->x[md->n] = v[i].level;
+		md->logx[md->n] = v[i].level > 0 ? log(v[i].level) : -INFINITY;
+		md->nt[md->n] = v[i].n;
+		md->k[md->n] = v[i].k;
+		md->n++;
+	}
+	free(v);
+	md->shape = o->shape;
+	md->gamma = 1.0 / o->m;
+	md->lapse_free = o->lapse_free;
+	md->lapse = o->lapse;
+	md->lapse_max = o->lapse_max;
+	md->npar = o->lapse_free ? 3 : 2;
+}
+
+static void model_clear(struct model *md)
+{
+	free(md->x);
+	free(md->logx);
+	free(md->nt);
+	free(md->k);
+}
+
+static double lapse_theta(const struct model *md, double lambda)
+{
+	double u = 2 * lambda / md->lapse_max - 1;
+	return asin(fmax(-1.0, fmin(1.0, u)));
+}
+
+static void fill_psyfn(const struct model *md, const double *th, struct psyfn *f)
+{
+	f->shape = md->shape;
+	f->gamma = md->gamma;
+	decode(md, th, &f->alpha, &f->beta, &f->lambda);
+}
+
+/* Checks the data before fitting; returns 0 or -1 with R->reason set. */
+static int precheck(const struct model *md, const struct fit_opts *o, struct fit_result *r)
+{
+	if (o->m < 2) {
+		snprintf(r->reason, sizeof r->reason, "m must be at least 2 (got %d)", o->m);
+		return -1;
+	}
+	if (o->lapse_free ? !(o->lapse_max >= 0 && o->lapse_max < 1 - 1.0 / o->m)
+			  : !(o->lapse >= 0 && o->lapse < 1 - 1.0 / o->m)) {
+		snprintf(r->reason, sizeof r->reason,
+			 "the lapse rate must be at least 0 and below 1 - 1/m");
+		return -1;
+	}
+	if (md->n == 0) {
+		snprintf(r->reason, sizeof r->reason, "there are no trials to fit");
+		return -1;
+	}
+	for (size_t i = 0; i < md->n; i++)
+		if (md->k[i] > md->nt[i]) {
+			snprintf(r->reason, sizeof r->reason,
+				 "more correct trials than trials at level %g", md->x[i]);
+			return -1;
+		}
+	if (md->n < 2) {
+		snprintf(r->reason, sizeof r->reason,
+			 "every trial is at one level (%g): a psychometric function needs at least "
+			 "two different levels", md->x[0]);
+		return -1;
+	}
+	if (md->shape == PSYFN_WEIBULL) {
+		if (md->x[0] < 0) {
+			snprintf(r->reason, sizeof r->reason,
+				 "the Weibull needs levels of 0 or more (found %g); use the logistic "
+				 "or normal shape", md->x[0]);
+			return -1;
+		}
+		size_t npos = 0;
+		for (size_t i = 0; i < md->n; i++)
+			npos += md->x[i] > 0;
+		if (npos < 2) {
+			snprintf(r->reason, sizeof r->reason,
+				 "the Weibull needs at least two different levels above 0");
+			return -1;
+		}
+	}
+	return 0;
+}
+
+/* Grid of starting points, then Nelder–Mead from the best of them, a restart, and a gradient
+ * polish. The binomial likelihood of these models is close to unimodal in (α, β) for a given λ,
+ * so a coarse grid (9 positions × 5 slopes × 2 lapse rates) finds the right basin at the cost of
+ * 90 likelihood evaluations. Returns true on convergence with the best θ in TH. */
+static bool ml_search(const struct model *md, double *th, double *best_val)
+{
+	double lo, hi;
+	if (md->shape == PSYFN_WEIBULL) {
+		size_t i = 0;
+		while (md->logx[i] == -INFINITY)
+			i++;
+		lo = md->logx[i];
+		hi = md->logx[md->n - 1];
+	} else {
+		lo = md->x[0];
+		hi = md->x[md->n - 1];
+	}
+	double r = hi - lo;
+	static const double bw_weibull[5] = {0.5, 1.0, 2.0, 4.0, 8.0};
+	static const double bw_frac[5] = {0.02, 0.05, 0.1, 0.2, 0.5};
+	static const double bl[2] = {0.01, 0.04};
+	*best_val = INFINITY;
+	int nl = md->lapse_free ? 2 : 1;
+	for (int a = 0; a < 9; a++)
+		for (int b = 0; b < 5; b++)
+			for (int c = 0; c < nl; c++) {
+				double t[3] = {lo + r * (a + 0.5) / 9.0,
+					       md->shape == PSYFN_WEIBULL ? log(bw_weibull[b])
+									  : log(bw_frac[b] * r),
+					       md->lapse_free ? lapse_theta(md, bl[c]) : 0};
+				double v = nll(md, t, NULL);
+				if (v < *best_val) {
+					*best_val = v;
+					memcpy(th, t, sizeof t);
+				}
+			}
+	double v;
+	nm_search(md, th, 4000, 1e-6, &v);
+	*best_val = v;
+	/* Restart from the best point with a fresh simplex: Nelder–Mead can stall on a ridge. */
+	bool ok = nm_search(md, th, 4000, 1e-6, &v);
+	if (v <= *best_val)
+		*best_val = v;
+	/* Polish with the gradient: the simplex stops where function values stop resolving. */
+	double t[3];
+	memcpy(t, th, sizeof t);
+	if (ok && bfgs_search(md, t, &v) && v <= *best_val) {
+		memcpy(th, t, sizeof t);
+		*best_val = v;
+	}
+	return ok;
+}
+
+/* Data the fitted function cannot speak for: flat across levels or a step between two levels.
+ * STALLED: the search did not converge; then a rise from F = 0.1 to 0.9 with no tested level
+ * inside it also counts as a step (the search was sharpening it without end). */
+static int postcheck(const struct model *md, const double *th, struct fit_result *r, bool stalled)
+{
+	double d0, d1;
+	size_t below = 0, above = 0;
+	for (size_t i = 0; i < md->n; i++) {
+		double F = core(md, i, th, &d0, &d1);
+		below += F < 1e-3;
+		above += F > 1 - 1e-3;
+	}
+	double lo = md->x[0], hi = md->x[md->n - 1];
+	double a = md->shape == PSYFN_WEIBULL ? exp(th[0]) : th[0];
+	if (below == md->n || above == md->n) {
+		snprintf(r->reason, sizeof r->reason,
+			 "proportion correct does not change across the levels tested (%g to %g): "
+			 "the data put the threshold outside them, so no fit is reported", lo, hi);
+		return -1;
+	}
+	/* Levels where the fitted F is neither at chance nor at ceiling. */
+	size_t inside = 0;
+	for (size_t i = 0; i < md->n; i++) {
+		double F = core(md, i, th, &d0, &d1);
+		inside += F > 0.01 && F < 0.99;
+	}
+	if (below + above == md->n || (stalled && inside <= 1)) {
+		size_t j = 0, k = md->n - 1;
+		while (j + 1 < md->n && core(md, j + 1, th, &d0, &d1) <= 0.01)
+			j++;
+		while (k > 0 && core(md, k - 1, th, &d0, &d1) >= 0.99)
+			k--;
+		snprintf(r->reason, sizeof r->reason,
+			 "proportion correct rises from chance to ceiling between levels %g and %g "
+			 "with %s in between: the slope cannot be estimated (test more levels in "
+			 "that range, or fix the lapse rate)", md->x[j], md->x[k],
+			 k > j + 1 ? "one level" : "no level");
+		return -1;
+	}
+	bool far = md->shape == PSYFN_WEIBULL ? (a > hi * 1e3) : (a > hi + 10 * (hi - lo) ||
+								   a < lo - 10 * (hi - lo));
+	if (far) {
+		snprintf(r->reason, sizeof r->reason,
+			 "the fitted position lies far outside the levels tested (%g to %g): the "
+			 "data do not constrain it", lo, hi);
+		return -1;
+	}
+	return 0;
+}
+
+struct boot_job {
+	const struct model *md;
+	const double *th0;
+	const double *p;       /* fitted probability per point */
+	const struct fit_opts *o;
+	int first, stride;
+	double *alpha, *beta, *lambda, *thr;
+	unsigned char *ok;     /* 0 failed, 1 converged, 2 converged with a reachable threshold */
+};
+
+static uint64_t mix64(uint64_t z)
+{
+	z += 0x9e3779b97f4a7c15ULL;
+	z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
+	z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
+	return z ^ (z >> 31);
+}
+
+static void *boot_worker(void *arg)
+{
+	struct boot_job *j = arg;
+	const struct model *md = j->md;
+	struct model bm = *md;
+	bm.k = xmalloc(md->n * sizeof *bm.k);
+	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	for (int b = j->first; b < j->o->nboot; b += j->stride) {
+		gsl_rng_set(rng, (unsigned long)(mix64(j->o->seed ^ mix64((uint64_t)b)) & 0xffffffffUL));
+		for (size_t i = 0; i < md->n; i++)
+			bm.k[i] = gsl_ran_binomial(rng, j->p[i], (unsigned int)md->nt[i]);
+		double th[3] = {j->th0[0], j->th0[1], j->th0[2]}, v;
+		bool conv = bfgs_search(&bm, th, &v);
+		if (!conv) {
+			memcpy(th, j->th0, sizeof th);
+			conv = nm_search(&bm, th, 4000, 1e-6, &v);
+		}
+		j->ok[b] = 0;
+		if (!conv)
+			continue;
+		struct psyfn f;
+		fill_psyfn(&bm, th, &f);
+		j->alpha[b] = f.alpha;
+		j->beta[b] = f.beta;
+		j->lambda[b] = f.lambda;
+		j->thr[b] = psyfn_inverse(&f, j->o->pc_threshold);
+		j->ok[b] = isfinite(j->thr[b]) ? 2 : 1;
+	}
+	gsl_rng_free(rng);
+	free(bm.k);
+	return NULL;
+}
+
+/* Percentile interval of the N values V (sorted in place). */
+static void pct_interval(double *v, size_t n, double conf, double out[2])
+{
+	gsl_sort(v, 1, n);
+	out[0] = gsl_stats_quantile_from_sorted_data(v, 1, n, (1 - conf) / 2);
+	out[1] = gsl_stats_quantile_from_sorted_data(v, 1, n, 1 - (1 - conf) / 2);
+}
+
+static void bootstrap(const struct model *md, const double *th0, const struct fit_opts *o,
+		      struct fit_result *r)
+{
+	int B = o->nboot;
+	double *p = xmalloc(md->n * sizeof *p);
+	for (size_t i = 0; i < md->n; i++)
+		p[i] = psyfn_eval(&r->f, md->x[i]);
+	double *alpha = xmalloc((size_t)B * sizeof *alpha), *beta = xmalloc((size_t)B * sizeof *beta);
+	double *lambda = xmalloc((size_t)B * sizeof *lambda), *thr = xmalloc((size_t)B * sizeof *thr);
+	unsigned char *ok = xcalloc((size_t)B, 1);
+	int T = o->threads < 1 ? 1 : o->threads > 64 ? 64 : o->threads;
+	struct boot_job jobs[64];
+	pthread_t tid[64];
+	bool started[64] = {false};
+	for (int t = 0; t < T; t++) {
+		jobs[t] = (struct boot_job){md, th0, p, o, t, T, alpha, beta, lambda, thr, ok};
+		if (t > 0)
+			started[t] = pthread_create(&tid[t], NULL, boot_worker, &jobs[t]) == 0;
+	}
+	boot_worker(&jobs[0]);
+	for (int t = 1; t < T; t++) {
+		if (started[t])
+			pthread_join(tid[t], NULL);
+		else
+			boot_worker(&jobs[t]);
+	}
+	/* Compact the converged samples to the front of each array. */
+	size_t nc = 0, nt = 0;
+	for (int b = 0; b < B; b++) {
+		if (!ok[b])
+			continue;
+		alpha[nc] = alpha[b];
+		beta[nc] = beta[b];
+		lambda[nc] = lambda[b];
+		nc++;
+	}
+	for (int b = 0; b < B; b++)
+		if (ok[b] == 2)
+			thr[nt++] = thr[b];
+	r->nboot = B;
+	r->nboot_failed = B - (int)nc;
+	r->threshold_ci_n = (int)nt;
+	if (nc >= 2 && nc * 2 >= (size_t)B) {
+		r->has_ci = true;
+		pct_interval(alpha, nc, o->conf, r->alpha_ci);
+		pct_interval(beta, nc, o->conf, r->beta_ci);
+		pct_interval(lambda, nc, o->conf, r->lambda_ci);
+		if (nt >= 2 && nt * 2 >= (size_t)B)
+			pct_interval(thr, nt, o->conf, r->threshold_ci);
+		else
+			r->threshold_ci[0] = r->threshold_ci[1] = NAN;
+	}
+	free(p);
+	free(alpha);
+	free(beta);
+	free(lambda);
+	free(thr);
+	free(ok);
+}
+
+struct fit_point *fit_group(const double *levels, const int *correct, size_t n, size_t *npts)
+{
+	*npts = 0;
+	if (n == 0)
+		return NULL;
+	struct fit_point *v = xmalloc(n * sizeof *v);
+	for (size_t i = 0; i < n; i++)
+		v[i] = (struct fit_point){levels[i], 1, correct[i] ? 1u : 0u};
+	qsort(v, n, sizeof *v, cmp_point);
+	size_t m = 0;
+	for (size_t i = 0; i < n; i++) {
+		if (m > 0 && v[m - 1].level == v[i].level) {
+			v[m - 1].n += v[i].n;
+			v[m - 1].k += v[i].k;
+		} else {
+			v[m++] = v[i];
+		}
+	}
+	*npts = m;
+	return v;
+}
+
+int fit_run(const struct fit_point *pts, size_t npts, const struct fit_opts *o,
+	    struct fit_result *r)
+{
+	memset(r, 0, sizeof *r);
+	r->threshold = r->deviance = r->loglik = NAN;
+	r->pc_threshold = o->pc_threshold;
+	struct model md;
+	model_init(&md, pts, npts, o);
+	r->npoints = md.n;
+	for (size_t i = 0; i < md.n; i++)
+		r->ntrials += md.nt[i];
+	r->f.shape = o->shape;
+	r->f.gamma = o->m > 0 ? 1.0 / o->m : NAN;
+	r->status = FIT_UNSUPPORTED;
+	int rc = -1;
+	gsl_error_handler_t *old = gsl_set_error_handler_off();
+	if (precheck(&md, o, r) < 0)
+		goto out;
+	double th[3] = {0, 0, 0}, val;
+	if (!ml_search(&md, th, &val)) {
+		/* A search that runs off towards a step or a flat line is the data's doing: say so. */
+		if (postcheck(&md, th, r, true) < 0)
+			goto out;
+		r->status = FIT_NO_CONVERGENCE;
+		snprintf(r->reason, sizeof r->reason,
+			 "the maximum-likelihood search did not converge");
+		goto out;
+	}
+	if (postcheck(&md, th, r, false) < 0)
+		goto out;
+	fill_psyfn(&md, th, &r->f);
+	r->loglik = -val;
+	double dev = 0;
+	for (size_t i = 0; i < md.n; i++) {
+		double p = psyfn_eval(&r->f, md.x[i]);
+		p = fmin(1 - P_EPS, fmax(P_EPS, p));
+		double n = (double)md.nt[i], k = (double)md.k[i];
+		if (k > 0)
+			dev += k * log(k / (n * p));
+		if (n - k > 0)
+			dev += (n - k) * log((n - k) / (n * (1 - p)));
+	}
+	r->deviance = 2 * dev;
+	r->dof = (int)md.n - (int)md.npar;
+	r->threshold = psyfn_inverse(&r->f, o->pc_threshold);
+	r->threshold_ok = isfinite(r->threshold);
+	r->status = FIT_OK;
+	rc = 0;
+	if (o->nboot > 0)
+		bootstrap(&md, th, o, r);
+out:
+	gsl_set_error_handler(old);
+	model_clear(&md);
+	return rc;
+}

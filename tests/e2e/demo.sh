@@ -1,0 +1,15 @@
+# e2e demo — `tachist demo` without a display: headless with the model observer, the whole demo
+# protocol, block summaries, every trial stored with exact timing.
+. tests/e2e/lib.sh
+unset DISPLAY WAYLAND_DISPLAY
+cd "$WORK"
+expect_exit "demo without a display exits 0" 0 "$TACHIST" demo --db "$WORK/demo.db"
+check "demo says it runs headless with the model observer" grep -q 'headless (simulated timing), observer model:' "$WORK/last.out"
+expect_eq "two block summaries" 2 "$(grep -c '^block [12] ' "$WORK/last.out")"
+check "session complete line" grep -q '^session .* complete$' "$WORK/last.out"
+expect_eq "156 trials (12 practice + 144 main), all with exact timing" "156|156" \
+  "$(sqlite3 "$WORK/demo.db" 'select count(*), sum(timing_ok) from trials')"
+# The demo model's accuracy falls with the noise budget (slope < 0): clean images beat budget 32.
+acc0=$(sqlite3 "$WORK/demo.db" 'select avg(correct) from trials where level=0')
+acc32=$(sqlite3 "$WORK/demo.db" 'select avg(correct) from trials where level=32')
+check "accuracy at budget 0 ($acc0) above budget 32 ($acc32)" awk -v a="$acc0" -v b="$acc32" 'BEGIN { exit !(a > b + 0.3) }'
