@@ -13,6 +13,7 @@
 
 #include "diag.h"
 #include "run.h"
+#include "store.h"
 
 struct blocks {
 	int sel;
@@ -173,6 +174,22 @@ static void blocks_draw(struct console *c, void *sv)
 	draw_state(c, st, y);
 }
 
+/* Blocks skipped earlier in a resumed session, from its "skip" events (detail = block name). */
+static void load_skips(struct console *c, struct blocks *b, const struct console_pres_state *st)
+{
+	struct store *db = NULL;
+	struct store_event_row *ev = NULL;
+	size_t n = 0;
+	if (store_open(console_options(c)->db_path, &db, NULL) == 0 &&
+	    store_events_load(db, st->session_id, &ev, &n, NULL) == 0)
+		for (size_t i = 0; i < n; i++)
+			for (size_t k = 0; k < st->nblocks && !strcmp(ev[i].kind, "skip"); k++)
+				if (ev[i].detail && !strcmp(ev[i].detail, st->blocks[k].name))
+					b->skipped[k] = true;
+	store_events_free(ev, n);
+	store_close(db);
+}
+
 static bool blocks_tick(struct console *c, void *sv)
 {
 	struct blocks *b = sv;
@@ -181,6 +198,7 @@ static bool blocks_tick(struct console *c, void *sv)
 		return false;
 	const struct console_pres_state *st = console_pres_state(p);
 	if (!b->chose && st->phase == CONSOLE_PRES_IDLE && st->nblocks) {
+		load_skips(c, b, st);
 		b->sel = first_to_run(st, b);
 		b->chose = true;
 		return true;

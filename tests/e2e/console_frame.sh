@@ -49,7 +49,7 @@ expect_screen "q leaves with exit 0" "console-exit=0"
 tm_stty_same "terminal modes restored after q"
 
 tm_keys "clear" Enter
-tm_keys "clear; NO_COLOR=1 $TACHIST console --db $DB; echo console-exit=\$?" Enter
+tm_console "" NO_COLOR=1
 expect_screen "NO_COLOR: the console opens" "Before anyone sits down"
 n=$(colours)
 expect_eq "NO_COLOR: no colour codes on the screen" 0 "$n"
@@ -61,8 +61,7 @@ tm_stty_same "terminal modes restored after Ctrl-C"
 # SIGTERM from outside: same clean way out.
 tm_console
 expect_screen "console opens again" "Before anyone sits down"
-pid=$($TM list-panes -t 0 -F '#{pane_pid}')
-cpid=$(ps -o pid= --ppid "$pid" | head -n 1 | tr -d ' ')
+cpid=$(tm_console_pid)
 check "the console's process is found" [ -n "$cpid" ]
 kill -TERM "$cpid"
 expect_screen "SIGTERM ends the console" "console-exit=1"
