@@ -311,7 +311,6 @@ static void make_options(struct console *c, struct setup *s, struct run_options 
 	o->has_seed = true;
 	o->seed = strtoull(s->f[ROW_SEED].text, NULL, 10);
 	o->resume_id = s->resume_id[0] ? s->resume_id : NULL;
-	o->observer_paced = !s->model;
 }
 
 /* Checks every field; focuses the first bad one. Returns true when the form can go. */
