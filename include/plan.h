@@ -52,6 +52,10 @@ struct plan {
 int plan_build(const struct protocol *p, const struct stimlist *l, const struct rig *r,
 	       uint64_t seed, struct plan *out, struct diag_list *d);
 void plan_clear(struct plan *pl);
+/* Only the block filters: a column the list lacks, or a filter that selects nothing, goes to D
+ * (plan_build reports the same). Needs no rig, so `check` runs it whatever the rig's state.
+ * Returns 0 or -1. */
+int plan_check_blocks(const struct protocol *p, const struct stimlist *l, struct diag_list *d);
 
 struct adapt_item;
 /* The stimuli adaptive block PROTO_BLOCK of P may show: the list rows its filter selects, each

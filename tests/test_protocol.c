@@ -170,6 +170,25 @@ static void protocol_testLoadMissingFile(void **state)
 	diag_clear(&d);
 }
 
+/* Found by the fuzzer: a section header longer than inih's line limit overflowed a buffer. It is
+ * now one "line is longer" error, and its keys are not misattributed. */
+static void protocol_testLongHeader(void **state)
+{
+	(void)state;
+	char text[1024] = "[";
+	memset(text + 1, 'x', 300);
+	strcpy(text + 301, "]\nkey = 1\n");
+	struct protocol p;
+	struct diag_list d;
+	diag_init(&d);
+	assert_int_equal(protocol_parse("l.ini", text, &p, &d), -1);
+	assert_string_equal(msg(&d, 0), "l.ini:1: error: line is longer than 198 characters");
+	assert_string_equal(msg(&d, 1), "l.ini:2: error: key 'key' is outside any section (start "
+			    "with [experiment])");
+	protocol_clear(&p);
+	diag_clear(&d);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
@@ -178,6 +197,7 @@ int main(void)
 		cmocka_unit_test(protocol_testMissingSections),
 		cmocka_unit_test(protocol_testAdaptiveReference),
 		cmocka_unit_test(protocol_testLoadMissingFile),
+		cmocka_unit_test(protocol_testLongHeader),
 	};
 	return cmocka_run_group_tests(tests, NULL, NULL);
 }

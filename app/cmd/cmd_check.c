@@ -8,6 +8,8 @@
  * as FILE:LINE: level: message (and into the JSON document with --json). Exit 0 when the session
  * can run (warnings allowed), 1 when any error was found, 2 on usage. */
 #include <cJSON.h>
+#include <errno.h>
+#include <unistd.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -128,6 +130,45 @@ static void check_fit(const struct protocol *p, const struct rig *r, const struc
 		diag_add(d, DIAG_WARNING, p->path, p->size_line, "size_deg = %g is %d px: %zu image%s "
 			 "must be scaled up beyond native size (up to %.2fx, for example '%s')",
 			 p->size_deg, stim_px, up, up == 1 ? "" : "s", worst_up, up_img);
+}
+
+struct ranked {
+	struct diag g;
+	size_t rank, index;
+};
+
+static int cmp_ranked(const void *a, const void *b)
+{
+	const struct ranked *x = a, *y = b;
+	if (x->rank != y->rank)
+		return x->rank < y->rank ? -1 : 1;
+	if (x->g.line != y->g.line)
+		return x->g.line < y->g.line ? -1 : 1;
+	return x->index < y->index ? -1 : x->index > y->index;
+}
+
+/* Orders the diagnostics by file (in the order files were first mentioned), then by line (whole-
+ * file messages first), keeping the order of discovery otherwise. */
+static void sort_diags(struct diag_list *d)
+{
+	if (d->n < 2)
+		return;
+	struct ranked *v = xmalloc(d->n * sizeof *v);
+	for (size_t i = 0; i < d->n; i++) {
+		v[i].g = d->v[i];
+		v[i].index = i;
+		v[i].rank = i;
+		for (size_t k = 0; k < i; k++)
+			if ((!d->v[k].file && !d->v[i].file) ||
+			    (d->v[k].file && d->v[i].file && !strcmp(d->v[k].file, d->v[i].file))) {
+				v[i].rank = v[k].rank;
+				break;
+			}
+	}
+	qsort(v, d->n, sizeof *v, cmp_ranked);
+	for (size_t i = 0; i < d->n; i++)
+		d->v[i] = v[i].g;
+	free(v);
 }
 
 static void block_conditions(const struct plan *pl, size_t b, const struct stimlist *l,
@@ -345,7 +386,10 @@ int cmd_check(int argc, char **argv)
 		rig_ok = rig_load(rig_path, &r, &d) == 0;
 	}
 	int list_ok = 0;
-	if (p.stimuli) {
+	if (p.stimuli && access(p.stimuli, R_OK) != 0) {
+		diag_add(&d, DIAG_ERROR, p.path, p.stimuli_line, "list: cannot read %s: %s", p.stimuli,
+			 strerror(errno));
+	} else if (p.stimuli) {
 		list_ok = stimlist_load(p.stimuli, p.nchoices ? &p : NULL, &l, &d) == 0;
 		struct image_summary sum = {0};
 		probe_images(&l, &sum, &d, &w, &h);
@@ -360,7 +404,10 @@ int cmd_check(int argc, char **argv)
 		have_plan = plan_build(&p, &l, &r, CHECK_SEED, &pl, &d) == 0;
 		if (have_plan)
 			check_fit(&p, &r, &l, w, h, pl.stim_px, &d);
+	} else if (!bad && list_ok) {
+		plan_check_blocks(&p, &l, &d);
 	}
+	sort_diags(&d);
 	int ok = diag_count(&d, DIAG_ERROR) == 0;
 	if (json) {
 		cJSON *j = json_doc(&p, &r, &l, ok && have_plan ? &pl : NULL, &d, ok);

@@ -74,8 +74,8 @@ int cmd_export(int argc, char **argv)
 		store_close(s);
 		if (rc)
 			return fail(err);
-		fprintf(stderr, "tachist export: %zu trials of %zu sessions as BIDS in %s (%zu files)\n",
-			st.rows, st.sessions, out, st.files);
+		fprintf(stderr, "tachist export: %zu trials of %zu session%s as BIDS in %s (%zu files)\n",
+			st.rows, st.sessions, st.sessions == 1 ? "" : "s", out, st.files);
 		return EXIT_OK;
 	}
 	FILE *fo = stdout;
@@ -113,7 +113,7 @@ int cmd_export(int argc, char **argv)
 	if (rc)
 		return fail(err);
 	if (strcmp(out, "-"))
-		fprintf(stderr, "tachist export: %zu trials of %zu sessions to %s\n", st.rows,
-			st.sessions, out);
+		fprintf(stderr, "tachist export: %zu trials of %zu session%s to %s\n", st.rows,
+			st.sessions, st.sessions == 1 ? "" : "s", out);
 	return EXIT_OK;
 }

@@ -665,6 +665,13 @@ struct flag {
 	char *msg;
 };
 
+/* One category: images, readable ones, mean and sample SD of luminance (l) and contrast (c). */
+struct catsum {
+	const char *name;
+	size_t n, nok;
+	double ml, sl, mc, sc;
+};
+
 struct audit {
 	const struct stimlist *l;
 	struct arec *r;
@@ -678,7 +685,11 @@ struct audit {
 	double stim_deg_actual;
 	char *rig_path;
 	int usual_w, usual_h;
+	struct catsum *cs;  /* categories, filled by audit_set */
+	size_t ncs;
 };
+
+static size_t category_summaries(const struct audit *a, struct catsum **out);
 
 static void add_flag(struct audit *a, size_t row, enum flag_kind k, char *msg)
 {
@@ -809,44 +820,27 @@ static void audit_set(struct audit *a, struct pair **pairs, size_t *npairs)
 				 a->stim_deg_actual));
 	}
 	/* Category z-scores of luminance and contrast (sample SD). */
-	double *lv = xmalloc(n * sizeof *lv), *cv = xmalloc(n * sizeof *cv);
-	for (size_t i = 0; i < n; i++) {
-		const char *cat = l->items[i].category;
-		int first = 1;
-		for (size_t j = 0; j < i; j++)
-			if (!strcmp(l->items[j].category, cat))
-				first = 0;
-		if (!first)
+	a->ncs = category_summaries(a, &a->cs);
+	for (size_t j = 0; j < n; j++) {
+		struct arec *r = &a->r[j];
+		const char *cat = l->items[j].category;
+		size_t c = 0;
+		while (strcmp(a->cs[c].name, cat))
+			c++;
+		const struct catsum *cs = &a->cs[c];
+		if (!r->ok || cs->nok < 2)
 			continue;
-		size_t k = 0;
-		for (size_t j = i; j < n; j++)
-			if (a->r[j].ok && !strcmp(l->items[j].category, cat)) {
-				lv[k] = a->r[j].lum;
-				cv[k] = a->r[j].rms;
-				k++;
-			}
-		if (k < 2)
-			continue;
-		double ml = gsl_stats_mean(lv, 1, k), sl = gsl_stats_sd_m(lv, 1, k, ml);
-		double mc = gsl_stats_mean(cv, 1, k), sc = gsl_stats_sd_m(cv, 1, k, mc);
-		for (size_t j = i; j < n; j++) {
-			struct arec *r = &a->r[j];
-			if (!r->ok || strcmp(l->items[j].category, cat))
-				continue;
-			r->zlum = sl > 0 ? (r->lum - ml) / sl : 0;
-			r->zrms = sc > 0 ? (r->rms - mc) / sc : 0;
-			if (fabs(r->zlum) > a->zmax)
-				add_flag(a, j, FL_LUMINANCE, xasprintf("%s: mean luminance %.4f is %+.2f SD "
-					 "from its category '%s' (mean %.4f, SD %.4f)", l->items[j].image,
-					 r->lum, r->zlum, cat, ml, sl));
-			if (fabs(r->zrms) > a->zmax)
-				add_flag(a, j, FL_CONTRAST, xasprintf("%s: RMS contrast %.4f is %+.2f SD "
-					 "from its category '%s' (mean %.4f, SD %.4f)", l->items[j].image,
-					 r->rms, r->zrms, cat, mc, sc));
-		}
+		r->zlum = cs->sl > 0 ? (r->lum - cs->ml) / cs->sl : 0;
+		r->zrms = cs->sc > 0 ? (r->rms - cs->mc) / cs->sc : 0;
+		if (fabs(r->zlum) > a->zmax)
+			add_flag(a, j, FL_LUMINANCE, xasprintf("%s: mean luminance %.4f is %+.2f SD from "
+				 "its category '%s' (mean %.4f, SD %.4f)", l->items[j].image, r->lum,
+				 r->zlum, cat, cs->ml, cs->sl));
+		if (fabs(r->zrms) > a->zmax)
+			add_flag(a, j, FL_CONTRAST, xasprintf("%s: RMS contrast %.4f is %+.2f SD from "
+				 "its category '%s' (mean %.4f, SD %.4f)", l->items[j].image, r->rms,
+				 r->zrms, cat, cs->mc, cs->sc));
 	}
-	free(lv);
-	free(cv);
 	/* Exact duplicates: equal content hashes, found by sorting. */
 	const struct arec **idx = xmalloc((n ? n : 1) * sizeof *idx);
 	size_t m = 0;
@@ -903,12 +897,6 @@ static cJSON *num_or_null(int have, double v)
 }
 
 /* Category summaries, in order of first appearance; *OUT is malloc'd. */
-struct catsum {
-	const char *name;
-	size_t n, nok;
-	double ml, sl, mc, sc;
-};
-
 static size_t category_summaries(const struct audit *a, struct catsum **out)
 {
 	const struct stimlist *l = a->l;
@@ -1008,8 +996,8 @@ static void print_json(const struct audit *a, const char *list_path, const struc
 				cJSON_AddItemToArray(fl, cJSON_CreateString(flag_names[k]));
 		cJSON_AddItemToArray(rows, o);
 	}
-	struct catsum *cs;
-	size_t nc = category_summaries(a, &cs);
+	const struct catsum *cs = a->cs;
+	size_t nc = a->ncs;
 	cJSON *cats = cJSON_AddArrayToObject(root, "categories");
 	for (size_t c = 0; c < nc; c++) {
 		cJSON *o = cJSON_CreateObject();
@@ -1021,7 +1009,6 @@ static void print_json(const struct audit *a, const char *list_path, const struc
 		cJSON_AddItemToObject(o, "contrast_sd", num_or_null(1, cs[c].sc));
 		cJSON_AddItemToArray(cats, o);
 	}
-	free(cs);
 	cJSON *dups = cJSON_AddArrayToObject(root, "duplicates");
 	for (size_t p = 0; p < npairs; p++) {
 		cJSON *o = cJSON_CreateObject();
@@ -1077,15 +1064,14 @@ static void print_text(const struct audit *a, const char *list_path)
 			printf("  %5d  %-32s %-12s %9s  (unreadable)\n", s->line, s->image, s->category,
 			       size);
 	}
-	struct catsum *cs;
-	size_t nc = category_summaries(a, &cs);
+	const struct catsum *cs = a->cs;
+	size_t nc = a->ncs;
 	printf("\ncategories (luminance: mean relative luminance; contrast: RMS)\n");
 	printf("  %-16s %6s %10s %10s %10s %10s\n", "category", "images", "lum mean", "lum SD",
 	       "rms mean", "rms SD");
 	for (size_t c = 0; c < nc; c++)
 		printf("  %-16s %6zu %10.4f %10.4f %10.4f %10.4f\n", cs[c].name, cs[c].n, cs[c].ml,
 		       cs[c].sl, cs[c].mc, cs[c].sc);
-	free(cs);
 	printf("\nL2 and Linf against each row's source, over all pixels and channels%s\n", u);
 	if (!a->nf) {
 		printf("\nnothing flagged\n");
@@ -1217,6 +1203,7 @@ static int stimuli_audit(int argc, char **argv)
 		free(a.f[k].msg);
 	free(a.f);
 	free(a.r);
+	free(a.cs);
 	free(pairs);
 	free(a.rig_path);
 	rig_clear(&rig);

@@ -188,9 +188,10 @@ static struct plan_trial *adaptive_trials(const struct protocol *p, const struct
 	return t;
 }
 
-static void block_trials(const struct protocol *p, const struct protocol_block *b, int bi,
-			 const struct stimlist *l, gsl_rng *rng, struct plan *pl,
-			 struct diag_list *d)
+/* Reports a filter on a column the list lacks, or one that selects nothing. Returns the number
+ * of rows selected (0 after a report). */
+static size_t block_selection(const struct protocol *p, const struct protocol_block *b,
+			      const struct stimlist *l, struct diag_list *d)
 {
 	for (size_t f = 0; f < b->nfilters; f++) {
 		char buf[64];
@@ -198,17 +199,33 @@ static void block_trials(const struct protocol *p, const struct protocol_block *
 			diag_add(d, DIAG_ERROR, p->path, b->select_line,
 				 "block '%s': the list has no column '%s' to select on", b->name,
 				 b->filters[f].column);
-			return;
+			return 0;
 		}
 	}
 	size_t nsel = 0;
 	for (size_t i = 0; i < l->n; i++)
 		nsel += row_selected(b, l, &l->items[i]);
-	if (!nsel) {
+	if (!nsel)
 		diag_add(d, DIAG_ERROR, p->path, b->select_line ? b->select_line : b->line,
 			 "block '%s' selects no rows of the list", b->name);
+	return nsel;
+}
+
+int plan_check_blocks(const struct protocol *p, const struct stimlist *l, struct diag_list *d)
+{
+	size_t errors0 = diag_count(d, DIAG_ERROR);
+	for (size_t b = 0; b < p->nblocks; b++)
+		block_selection(p, &p->blocks[b], l, d);
+	return diag_count(d, DIAG_ERROR) > errors0 ? -1 : 0;
+}
+
+static void block_trials(const struct protocol *p, const struct protocol_block *b, int bi,
+			 const struct stimlist *l, gsl_rng *rng, struct plan *pl,
+			 struct diag_list *d)
+{
+	size_t nsel = block_selection(p, b, l, d);
+	if (!nsel)
 		return;
-	}
 	size_t n;
 	struct plan_trial *t;
 	if (b->adaptive) {

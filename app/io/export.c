@@ -558,6 +558,31 @@ static void bids_cell_text(struct buf *b, const char *v)
 		buf_str(b, "n/a");   /* BIDS "Tabular files": missing values are n/a */
 }
 
+/* Seconds from nanosecond clocks: nine decimals at most (the clocks' resolution), trailing zeros
+ * dropped, so 0.55028358 s is not printed as 0.5502835810000001. */
+static void buf_seconds(struct buf *b, double v)
+{
+	char tmp[48];
+	snprintf(tmp, sizeof tmp, "%.9f", v);
+	char *e = tmp + strlen(tmp);
+	while (e > tmp && e[-1] == '0')
+		*--e = '\0';
+	if (e > tmp && e[-1] == '.')
+		*--e = '\0';
+	if (!strcmp(tmp, "-0"))
+		strcpy(tmp, "0");
+	buf_str(b, tmp);
+}
+
+static void bids_cell_seconds(struct buf *b, bool has, double v)
+{
+	buf_chr(b, '\t');
+	if (has && isfinite(v))
+		buf_seconds(b, v);
+	else
+		buf_str(b, "n/a");
+}
+
 static void bids_cell_num(struct buf *b, bool has, double v)
 {
 	buf_chr(b, '\t');
@@ -714,11 +739,11 @@ static int bids_session(struct store *s, const struct store_session *ss, const c
 		}
 		bool timed = t->onset_ns != 0;
 		if (timed)
-			buf_num(&b, (double)(t->onset_ns - t0) / 1e9);
+			buf_seconds(&b, (double)(t->onset_ns - t0) / 1e9);
 		else
 			buf_str(&b, "n/a");
-		bids_cell_num(&b, timed && t->offset_ns > t->onset_ns,
-			      (double)(t->offset_ns - t->onset_ns) / 1e9);
+		bids_cell_seconds(&b, timed && t->offset_ns > t->onset_ns,
+				  (double)(t->offset_ns - t->onset_ns) / 1e9);
 		bids_cell_text(&b, t->category);
 		bids_cell_text(&b, t->image);
 		bids_cell_int(&b, true, t->block);
@@ -733,7 +758,7 @@ static int bids_session(struct store *s, const struct store_session *ss, const c
 		bids_cell_text(&b, t->response_key);
 		bids_cell_text(&b, t->response_category);
 		bids_cell_int(&b, t->correct >= 0, t->correct);
-		bids_cell_num(&b, t->has_rt, t->rt_ms / 1000.0);
+		bids_cell_seconds(&b, t->has_rt, t->rt_ms / 1000.0);
 		bids_cell_int(&b, true, t->timed_out);
 		bids_cell_int(&b, true, t->frames_planned);
 		bids_cell_int(&b, true, t->frames_actual);

@@ -77,6 +77,33 @@ static const char *format_of(SDL_RWops *rw)
 	return NULL;
 }
 
+/* A colour key (how the decoder hands over a PNG tRNS chunk) survives conversion only as a key,
+ * not as alpha; this sets alpha to 0 in C (RGBA32) wherever S's raw pixel equals the key, so the
+ * buffer shows the transparency the presenter will show. */
+static void key_to_alpha(SDL_Surface *s, SDL_Surface *c)
+{
+	Uint32 key;
+	if (SDL_GetColorKey(s, &key) || SDL_LockSurface(s))
+		return;
+	if (SDL_LockSurface(c)) {
+		SDL_UnlockSurface(s);
+		return;
+	}
+	int bpp = s->format->BytesPerPixel;
+	for (int y = 0; y < s->h; y++) {
+		const Uint8 *sp = (const Uint8 *)s->pixels + (size_t)s->pitch * (size_t)y;
+		Uint8 *cp = (Uint8 *)c->pixels + (size_t)c->pitch * (size_t)y;
+		for (int x = 0; x < s->w; x++, sp += bpp) {
+			Uint32 v = 0;
+			memcpy(&v, sp, (size_t)bpp);   /* little-endian hosts: the low bytes hold the value */
+			if (v == key)
+				cp[4 * x + 3] = 0;
+		}
+	}
+	SDL_UnlockSurface(c);
+	SDL_UnlockSurface(s);
+}
+
 int image_load(const char *path, struct image *img, struct image_info *info, char *err,
 	       size_t errlen)
 {
@@ -90,6 +117,14 @@ int image_load(const char *path, struct image *img, struct image_info *info, cha
 	}
 	int is_png = png_header(f, info) == 0;
 	fclose(f);
+	if (is_png && info->channels == 1 && info->alpha) {
+		/* SDL2_image 2.6 turns grey + tRNS into a 16-bit surface of wrong colours: refuse
+		 * rather than measure (or show) pixels that are not the file's. */
+		snprintf(err, errlen, "%s is a grey PNG with a transparent grey level (tRNS chunk), "
+			 "which SDL2_image decodes wrongly; save it without transparency or as grey "
+			 "with an alpha channel", path);
+		return -1;
+	}
 	SDL_RWops *rw = SDL_RWFromFile(path, "rb");
 	if (!rw) {
 		snprintf(err, errlen, "cannot open %s", path);
@@ -114,6 +149,8 @@ int image_load(const char *path, struct image *img, struct image_info *info, cha
 		info->alpha = pf->Amask != 0;
 	}
 	SDL_Surface *c = SDL_ConvertSurfaceFormat(s, SDL_PIXELFORMAT_RGBA32, 0);
+	if (c && SDL_HasColorKey(s))
+		key_to_alpha(s, c);
 	SDL_FreeSurface(s);
 	if (!c) {
 		snprintf(err, errlen, "%s cannot be converted (%s)", path, SDL_GetError());

@@ -70,6 +70,7 @@ static void check_line(struct reader *r, const char *s, size_t len)
 		if (!end) {
 			diag_add(r->d, DIAG_ERROR, r->path, r->line, "section header is missing its ']'");
 			r->bad = 1;
+			r->fn(r->user, NULL, NULL, NULL, r->line);
 			return;
 		}
 		char name[INIFILE_MAX_LINE + 1];
@@ -111,7 +112,6 @@ static char *next_line(char *str, int num, void *stream)
 		s++;
 		n--;
 	}
-	check_line(r, s, n);
 	size_t max = (size_t)num - 2;
 	if (max > INIFILE_MAX_LINE)
 		max = INIFILE_MAX_LINE;
@@ -120,6 +120,8 @@ static char *next_line(char *str, int num, void *stream)
 			 "line is longer than %d characters", INIFILE_MAX_LINE);
 		r->bad = 1;
 		n = 0;   /* hand inih an empty line instead */
+	} else {
+		check_line(r, s, n);
 	}
 	memcpy(str, s, n);
 	str[n] = '\n';
@@ -169,10 +171,10 @@ char *inifile_read(const char *path, size_t *len, struct diag_list *d)
 			buf = xrealloc(buf, cap);
 		}
 	}
-	int err = ferror(f);
+	int err = ferror(f) ? errno : 0;
 	fclose(f);
 	if (err) {
-		diag_add(d, DIAG_ERROR, path, 0, "cannot read the file");
+		diag_add(d, DIAG_ERROR, path, 0, "cannot read the file: %s", strerror(err));
 		free(buf);
 		return NULL;
 	}

@@ -554,7 +554,8 @@ static void block_finish(struct protocol_ctx *c)
 	}
 }
 
-static const char *const plain_required[] = {"experiment", "choices", "timing", "display"};
+/* [experiment], [choices], [timing] and [display]: the first rows of sections[]. */
+#define NREQUIRED_PLAIN 4
 
 static void close_instance(struct protocol_ctx *c)
 {
@@ -711,6 +712,11 @@ static void set_key(struct protocol_ctx *c, const char *key, const char *value, 
 static int on_entry(void *user, const char *section, const char *key, const char *value, int line)
 {
 	struct protocol_ctx *c = user;
+	if (!section) {   /* a broken header: skip until the next one */
+		close_instance(c);
+		c->skipping = 1;
+		return 0;
+	}
 	if (!key) {
 		open_section(c, section, line);
 		return 0;
@@ -773,7 +779,7 @@ int protocol_parse(const char *path, const char *text, struct protocol *p, struc
 	inifile_parse(path, text, on_entry, &c, d);
 	close_instance(&c);
 	/* The plain kinds every protocol needs are the first rows of sections[]. */
-	for (size_t k = 0; k < sizeof plain_required / sizeof plain_required[0]; k++)
+	for (size_t k = 0; k < NREQUIRED_PLAIN; k++)
 		if (!c.plain_line[k]) {
 			const struct protocol_section *s = sections[k];
 			char need[256] = "";

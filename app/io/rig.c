@@ -119,6 +119,11 @@ static void set_value(struct rig_ctx *c, const struct rig_key *k, const char *v,
 static int on_entry(void *user, const char *section, const char *key, const char *value, int line)
 {
 	struct rig_ctx *c = user;
+	if (!section) {   /* a broken header: skip its keys */
+		c->outside = 0;
+		c->section = NULL;
+		return 0;
+	}
 	if (!key) {
 		c->outside = 0;
 		c->section = NULL;

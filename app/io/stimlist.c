@@ -86,11 +86,16 @@ static void header(struct lctx *c)
 			diag_add(c->d, DIAG_ERROR, c->file, line, "column %zu has no name", i + 1);
 			continue;
 		}
-		for (size_t j = 0; j < i; j++)
-			if (!strcmp(c->row.f[j], name))
+		int twice = 0;
+		for (size_t j = 0; j < i && !twice; j++)
+			if (!strcmp(c->row.f[j], name)) {
 				diag_add(c->d, DIAG_ERROR, c->file, line,
 					 "column '%s' appears twice (columns %zu and %zu)", name, j + 1,
 					 i + 1);
+				twice = 1;
+			}
+		if (twice)
+			continue;   /* the first one counts; the rest of the rows stay readable */
 		if (!strcmp(name, "image")) c->col_image = (int)i;
 		else if (!strcmp(name, "category")) c->col_category = (int)i;
 		else if (!strcmp(name, "level")) c->col_level = (int)i;
@@ -324,9 +329,9 @@ int stimlist_parse(const char *path, const char *data, size_t len, const struct 
 			c.row_line = c.line;
 		c.row_ended = 0;
 		if (csv_parse(&parser, s, n, on_field, on_row, &c) != n) {
-			diag_add(d, DIAG_ERROR, path, c.line, "broken quoting: %s (RFC 4180: a field with "
-				 "quotes must be quoted, and quotes inside doubled)",
-				 csv_strerror(csv_error(&parser)));
+			diag_add(d, DIAG_ERROR, path, c.line, "broken quoting: a quote inside an unquoted "
+				 "field or text after a closing quote (RFC 4180: quote the whole field and "
+				 "double the quotes inside it)");
 			broken = 1;
 			break;
 		}
@@ -370,12 +375,12 @@ int stimlist_load(const char *path, const struct protocol *p, struct stimlist *l
 			buf = xrealloc(buf, cap);
 		}
 	}
-	int err = ferror(f);
+	int err = ferror(f) ? errno : 0;
 	fclose(f);
 	if (err) {
 		free(buf);
 		memset(l, 0, sizeof *l);
-		diag_add(d, DIAG_ERROR, path, 0, "cannot read the stimulus list");
+		diag_add(d, DIAG_ERROR, path, 0, "cannot read the stimulus list: %s", strerror(err));
 		return -1;
 	}
 	int rc = stimlist_parse(path, buf, n, p, l, d);

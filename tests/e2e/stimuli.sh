@@ -118,20 +118,24 @@ check "a corrupt image is named" grep -q "list.csv:43: unreadable: .*corrupt.png
 
 # --- 16-bit, grey, grey+alpha and RGBA images are reported, not refused -----------------------
 B=$WORK/bad
-printf 'image,category\nrgb.png,a\ndeep16.png,a\ngrey.png,a\ngreyalpha.png,a\nopaque_rgba.png,a\nnotes.png,a\ntruncated.png,a\nmissing.png,a\n' >"$B/list.csv"
+printf 'image,category\nrgb.png,a\ndeep16.png,a\ngrey.png,a\ngreykey.png,a\nrgbkey.png,a\npalkey.png,a\ngreyalpha.png,a\nopaque_rgba.png,a\nnotes.png,a\ntruncated.png,a\nmissing.png,a\n' >"$B/list.csv"
 expect_exit "audit of odd formats exits 1 (flags), no crash" 1 "$TACHIST" stimuli audit "$B/list.csv" --json --rig "$WORK/rig.ini" --size-deg 0.5
 cp "$WORK/last.out" "$WORK/bad.json"
+check "a grey PNG with a tRNS key is refused with a reason" grep -q "greykey.png is a grey PNG with a transparent grey level" "$WORK/bad.json"
 check "channels, bit depth and alpha as stored" $PY - "$WORK/bad.json" <<'EOF'
 import json, sys
 rows = {r["image"]: r for r in json.load(open(sys.argv[1]))["rows"]}
+# RGB and palette PNGs with a tRNS chunk keep 3 channels and can be transparent.
 want = {"rgb.png": (3, 8, False), "deep16.png": (3, 16, False), "grey.png": (1, 8, False),
+        "rgbkey.png": (3, 8, True), "palkey.png": (3, 8, True),
         "greyalpha.png": (2, 8, True), "opaque_rgba.png": (4, 8, True)}
 ok = all((rows[k]["channels"], rows[k]["bits"], rows[k]["alpha"]) == v for k, v in want.items())
 # A 16-bit file holding v·257 decodes to v: same pixels as the 8-bit file (exact duplicate).
 ok = ok and rows["deep16.png"]["sha256"] == rows["rgb.png"]["sha256"]
-ok = ok and all(not rows[k]["readable"] for k in ("notes.png", "truncated.png", "missing.png"))
-# An opaque RGBA file holds the same pixels as the RGB one: a duplicate, and nothing else.
-ok = ok and "translucent" in rows["greyalpha.png"]["flags"] and rows["opaque_rgba.png"]["flags"] == ["duplicate"]
+ok = ok and all(not rows[k]["readable"] for k in ("notes.png", "truncated.png", "missing.png", "greykey.png"))
+# Keyed and alpha transparency is found; an opaque RGBA file holding the RGB pixels is a duplicate.
+ok = ok and all("translucent" in rows[k]["flags"] for k in ("greyalpha.png", "rgbkey.png", "palkey.png"))
+ok = ok and "duplicate" in rows["opaque_rgba.png"]["flags"] and "translucent" not in rows["opaque_rgba.png"]["flags"]
 sys.exit(0 if ok else 1)
 EOF
 

@@ -20,13 +20,14 @@ import zlib
 import numpy as np
 
 
-def write_png(path, a, bits=8):
-    """a: (H, W) grey, (H, W, 2) grey+alpha, (H, W, 3) RGB or (H, W, 4) RGBA, integer codes."""
+def write_png(path, a, bits=8, trns=None, plte=None):
+    """a: (H, W) grey, (H, W, 2) grey+alpha, (H, W, 3) RGB or (H, W, 4) RGBA, integer codes; with
+    plte (a list of RGB triples), a is (H, W) palette indices. trns: the bytes of a tRNS chunk."""
     a = np.asarray(a)
     if a.ndim == 2:
         a = a[:, :, None]
     h, w, c = a.shape
-    ctype = {1: 0, 2: 4, 3: 2, 4: 6}[c]
+    ctype = 3 if plte is not None else {1: 0, 2: 4, 3: 2, 4: 6}[c]
     dt = ">u2" if bits == 16 else "u1"
     raw = b"".join(b"\x00" + a[y].astype(dt).tobytes() for y in range(h))
 
@@ -37,6 +38,10 @@ def write_png(path, a, bits=8):
     with open(path, "wb") as f:
         f.write(b"\x89PNG\r\n\x1a\n")
         f.write(chunk(b"IHDR", struct.pack(">IIBBBBB", w, h, bits, ctype, 0, 0, 0)))
+        if plte is not None:
+            f.write(chunk(b"PLTE", bytes(v for rgb in plte for v in rgb)))
+        if trns is not None:
+            f.write(chunk(b"tRNS", trns))
         f.write(chunk(b"IDAT", zlib.compress(raw, 6)))
         f.write(chunk(b"IEND", b""))
 
@@ -155,6 +160,10 @@ def make_bad(root):
     write_png(os.path.join(root, "rgb.png"), rgb)
     write_png(os.path.join(root, "deep16.png"), rgb * 257, bits=16)
     write_png(os.path.join(root, "grey.png"), rgb[:, :, 0])
+    write_png(os.path.join(root, "greykey.png"), rgb[:, :, 0], trns=struct.pack(">H", rgb[0, 0, 0]))
+    write_png(os.path.join(root, "rgbkey.png"), rgb, trns=struct.pack(">HHH", *rgb[0, 0]))
+    idx = (rgb[:, :, 0] > 120).astype(np.uint8)
+    write_png(os.path.join(root, "palkey.png"), idx, plte=[(10, 20, 30), (200, 180, 160)], trns=b"\x00")
     write_png(os.path.join(root, "greyalpha.png"), np.dstack([rgb[:, :, 0], np.full((32, 32), 200)]))
     alpha = np.dstack([rgb, np.full((32, 32), 255)])
     alpha[:4, :4, 3] = 0
