@@ -21,6 +21,9 @@
  * blocking; a few ms is fine, the ITI absorbs it): the presenter never waits for the console. What
  * it returns is obeyed at once: RUN_CMD_PAUSE shows the pause screen to the observer and keeps
  * calling back (snapshot.state = RUN_STATE_PAUSED) until it returns RUN_CMD_CONTINUE or RUN_CMD_END.
+ * On a break screen (RUN_STATE_BREAK, a keyboard observer's "press space" screen) and in the
+ * observer's own pause menu (paused_by_observer) only RUN_CMD_END has an effect: the observer goes
+ * on with Space or the menu.
  *
  * Signals: run_open installs SIGINT/SIGTERM handlers (unless opt.no_signal_handlers) that only set a
  * flag; the current trial is then finished or discarded, the session marked `interrupted` and
@@ -57,8 +60,8 @@ struct run_options {
 	uint64_t seed;               /* plan seed; a new one from /dev/urandom when !has_seed */
 	const char *resume_id;       /* continue this session (refused when protocol/list changed) */
 	bool no_signal_handlers;     /* the caller owns SIGINT/SIGTERM and calls run_request_stop */
-	bool observer_paced;         /* keyboard: "press space" screens before blocks and at breaks
-				      * (default true for the keyboard, ignored for the model) */
+	bool no_observer_screens;    /* keyboard: leave out the "press space" screens before blocks and
+				      * at rest breaks (the model observer never gets them) */
 	const char *screenshot_dir;  /* debug: save PNGs of the first trial's frames here */
 };
 

@@ -14,7 +14,7 @@
 
 int cmd_demo(int argc, char **argv)
 {
-	struct run_options o = {.db_path = "tachist-demo.db", .subject = "demo1", .observer_paced = true};
+	struct run_options o = {.db_path = "tachist-demo.db", .subject = "demo1"};
 	char *rig_arg = NULL;
 	if (cmd_run_options(argc, argv, 1, &o, &rig_arg)) {
 		cmd_print_usage("demo", stderr);

@@ -142,7 +142,7 @@ int cmd_run_options(int argc, char **argv, int first, struct run_options *o, cha
 
 int cmd_run(int argc, char **argv)
 {
-	struct run_options o = {.observer = "keyboard", .observer_paced = true};
+	struct run_options o = {.observer = "keyboard"};
 	char *rig_arg = NULL;
 	if (argc < 2 || argv[1][0] == '-') {
 		cmd_print_usage("run", stderr);

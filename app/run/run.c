@@ -280,7 +280,7 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		s->resp = responder_model_new(&spec);
 		observer_format(&spec, s->observer_text, sizeof s->observer_text);
 	}
-	s->paced = s->keyboard && o->observer_paced;
+	s->paced = s->keyboard && !o->no_observer_screens;
 	if (s->proto.mask == MASK_NOISE) {
 		s->mask = display_texture_noise(s->disp, s->plan.stim_px, s->plan.stim_px,
 						s->plan.stim_px / 32 + 1, s->plan.seed, e, sizeof e);
