@@ -2,7 +2,8 @@
  *
  * Model (Wichmann & Hill 2001): P(x) = γ + (1 − γ − λ)·F(x; α, β), γ = 1/m fixed, λ free in
  * [0, LAPSE_MAX] or fixed, F one of psyfn's shapes. Data are grouped points (level, n, k); trial
- * rows are grouped first with fit_group. Pure computation (GSL minimisers and random numbers); the
+ * rows are grouped first with fit_group. For the logistic and normal shapes β < 0 describes a
+ * function that falls as the level rises (psyfn's formulas hold for either sign). Pure computation (GSL minimisers and random numbers); the
  * caller words the results for people. Callers: app/core/analysis.c, app/cmd/cmd_fit.c. */
 #ifndef TACHIST_FIT_H
 #define TACHIST_FIT_H
@@ -29,6 +30,9 @@ struct fit_opts {
 	uint64_t seed;         /* bootstrap RNG seed (mt19937) */
 	double conf;           /* interval level, 0.95 */
 	int threads;           /* bootstrap worker threads, >= 1 */
+	int direction;         /* +1 rising, −1 falling, 0 = from the data (falling data, such as
+				  accuracy against a perturbation budget, give β < 0 for the
+				  logistic and normal; the Weibull only rises) */
 };
 
 /* Defaults for M choices: Weibull, λ free in [0, 0.06], threshold halfway between chance and

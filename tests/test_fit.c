@@ -54,6 +54,36 @@ static void fit_testRecoversKnownParameters(void **state)
 	}
 }
 
+/* Falling data (accuracy against a perturbation budget): the logistic and normal fit them with
+ * β < 0, found from the data; the Weibull refuses. */
+static void fit_testFallingData(void **state)
+{
+	(void)state;
+	static const double lv[] = {0, 4, 8, 12, 16, 20, 24};
+	for (int s = PSYFN_LOGISTIC; s <= PSYFN_NORMAL; s++) {
+		struct psyfn truth = {(enum psyfn_shape)s, 11.0, -2.5, 0.25, 0.0};
+		struct fit_point pts[7];
+		simulate(&truth, lv, 7, 3000, 5 + (unsigned long)s, pts);
+		struct fit_opts o;
+		fit_opts_default(&o, 4);
+		o.shape = truth.shape;
+		o.lapse_free = false;
+		o.nboot = 0;
+		struct fit_result r;
+		assert_int_equal(fit_run(pts, 7, &o, &r), 0);
+		assert_float_equal(r.f.alpha, 11.0, 0.3);
+		assert_float_equal(r.f.beta, -2.5, 0.3);
+		assert_float_equal(r.threshold, psyfn_inverse(&truth, o.pc_threshold), 0.3);
+		o.direction = 1;   /* forced rising: a worse fit, but no crash and no NaN */
+		fit_run(pts, 7, &o, &r);
+		assert_null(strstr(r.reason, "nan"));
+		o.direction = 0;
+		o.shape = PSYFN_WEIBULL;
+		assert_int_equal(fit_run(pts, 7, &o, &r), -1);
+		assert_non_null(strstr(r.reason, "falls as the level rises"));
+	}
+}
+
 /* Trial rows grouped by fit_group give the same fit as the counts. */
 static void fit_testGroupedEqualsTrials(void **state)
 {
@@ -235,6 +265,7 @@ int main(void)
 {
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(fit_testRecoversKnownParameters),
+		cmocka_unit_test(fit_testFallingData),
 		cmocka_unit_test(fit_testGroupedEqualsTrials),
 		cmocka_unit_test(fit_testSaturatedDeviance),
 		cmocka_unit_test(fit_testUnsupportedData),

@@ -13,6 +13,7 @@
 
 #include <cJSON.h>
 
+#include "adapt_history.h"
 #include "analysis.h"
 #include "cmd.h"
 #include "store.h"
@@ -811,6 +812,61 @@ static cJSON *json_doc(const struct analysis *a, const struct ropts *o, const st
 	return j;
 }
 
+/* ---- staircases (adaptive blocks) ---- */
+
+static void print_staircases(const struct adapt_history *h)
+{
+	if (!h->n)
+		return;
+	printf("\nStaircases (adaptive blocks; threshold: up-down mean of the last reversals on the "
+	       "axis ± their SD, QUEST posterior mean ± SD)\n");
+	printf("  %-10s %-10s %-12s %-8s %3s %-10s %9s %6s %9s %11s %19s %6s\n", "session",
+	       "subject", "block", "rule", "#", "category", "start", "trials", "reversals",
+	       "threshold", "± SD (levels)", "pc");
+	for (size_t i = 0; i < h->n; i++) {
+		const struct adapt_history_row *r = &h->rows[i];
+		printf("  %-10.8s %-10.10s %-12.12s %-8s %3d %-10.10s %9.4g %6d %9d ", r->session,
+		       r->subject ? r->subject : "", r->block_name, adapt_rule_name(r->rule),
+		       r->staircase, r->category ? r->category : "any", r->start, r->est.ntrials,
+		       r->est.nreversals);
+		if (!r->est.valid)
+			printf("%11s %19s %6s\n", "none yet", "", "");
+		else if (isnan(r->est.lower))
+			printf("%11.4g %19s %6.3f\n", r->est.threshold, "", r->est.pc);
+		else
+			printf("%11.4g %9.4g to %-7.4g %6.3f\n", r->est.threshold, r->est.lower,
+			       r->est.upper, r->est.pc);
+	}
+}
+
+static void json_staircases(cJSON *j, const struct adapt_history *h)
+{
+	cJSON *arr = cJSON_AddArrayToObject(j, "staircases");
+	for (size_t i = 0; i < h->n; i++) {
+		const struct adapt_history_row *r = &h->rows[i];
+		cJSON *e = cJSON_CreateObject();
+		cJSON_AddStringToObject(e, "session", r->session);
+		cJSON_AddItemToObject(e, "subject", jstr(r->subject));
+		cJSON_AddNumberToObject(e, "block", r->block);
+		cJSON_AddStringToObject(e, "block_name", r->block_name);
+		cJSON_AddStringToObject(e, "adaptive", r->section);
+		cJSON_AddStringToObject(e, "rule", adapt_rule_name(r->rule));
+		cJSON_AddNumberToObject(e, "staircase", r->staircase);
+		cJSON_AddItemToObject(e, "category", jstr(r->category));
+		cJSON_AddNumberToObject(e, "start", r->start);
+		cJSON_AddNumberToObject(e, "trials", r->est.ntrials);
+		cJSON_AddNumberToObject(e, "reversals", r->est.nreversals);
+		cJSON_AddItemToObject(e, "threshold", jnum(r->est.valid ? r->est.threshold : NAN));
+		cJSON_AddItemToObject(e, "axis_mean", jnum(r->est.valid ? r->est.axis_mean : NAN));
+		cJSON_AddItemToObject(e, "axis_sd", jnum(r->est.valid ? r->est.axis_sd : NAN));
+		cJSON_AddItemToObject(e, "threshold_lower", jnum(r->est.valid ? r->est.lower : NAN));
+		cJSON_AddItemToObject(e, "threshold_upper", jnum(r->est.valid ? r->est.upper : NAN));
+		cJSON_AddNumberToObject(e, "pc", r->est.pc);
+		cJSON_AddNumberToObject(e, "used", r->est.nused);
+		cJSON_AddItemToArray(arr, e);
+	}
+}
+
 int cmd_report(int argc, char **argv)
 {
 	struct ropts o;
@@ -853,15 +909,24 @@ int cmd_report(int argc, char **argv)
 			fprintf(stderr, "tachist report: wrote %d figures and index.html to %s\n", nf,
 				o.plots);
 	}
+	struct adapt_history H;
+	if (adapt_history_load(s, o.session, o.subject, &H, &err) < 0) {
+		fprintf(stderr, "tachist report: %s\n", err);
+		free(err);
+		goto out;
+	}
 	if (o.json) {
 		cJSON *j = json_doc(a, &o, &L);
+		json_staircases(j, &H);
 		char *txt = cJSON_Print(j);
 		printf("%s\n", txt);
 		free(txt);
 		cJSON_Delete(j);
 	} else {
 		print_text(a, &o, &L);
+		print_staircases(&H);
 	}
+	adapt_history_clear(&H);
 	rc = EXIT_OK;
 out:
 	analysis_destroy(a);

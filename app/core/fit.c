@@ -38,6 +38,7 @@ struct model {
 	double gamma;
 	bool lapse_free;
 	double lapse, lapse_max;
+	double sign;               /* +1: P rises with the level; −1: it falls (logistic, normal) */
 	size_t npar;
 };
 
@@ -54,6 +55,7 @@ void fit_opts_default(struct fit_opts *o, int m)
 	o->seed = 1;
 	o->conf = 0.95;
 	o->threads = 1;
+	o->direction = 0;
 }
 
 int fit_lapse_parse(const char *s, struct fit_opts *o)
@@ -75,14 +77,14 @@ int fit_lapse_parse(const char *s, struct fit_opts *o)
 static void decode(const struct model *md, const double *th, double *a, double *b, double *l)
 {
 	*a = md->shape == PSYFN_WEIBULL ? exp(th[0]) : th[0];
-	*b = exp(th[1]);
+	*b = md->sign * exp(th[1]);
 	*l = md->lapse_free ? md->lapse_max * (1 + sin(th[2])) / 2 : md->lapse;
 }
 
 /* F, dF/dθ0 and dF/dθ1 at point I. */
 static double core(const struct model *md, size_t i, const double *th, double *d0, double *d1)
 {
-	double b = exp(th[1]);
+	double b = md->sign * exp(th[1]);   /* z = (x − α)/β keeps dz/dθ1 = −z for either sign */
 	if (md->shape == PSYFN_WEIBULL) {
 		if (md->logx[i] == -INFINITY) {
 			*d0 = *d1 = 0;
@@ -269,6 +271,22 @@ static void model_init(struct model *md, const struct fit_point *pts, size_t npt
 	md->lapse = o->lapse;
 	md->lapse_max = o->lapse_max;
 	md->npar = o->lapse_free ? 3 : 2;
+	md->sign = o->direction < 0 ? -1 : 1;
+	if (o->direction == 0 && md->n >= 2) {
+		/* Automatic: the sign of the trial-weighted covariance of level and proportion
+		 * correct. */
+		double sn = 0, sx = 0, sp = 0, cov = 0;
+		for (size_t i = 0; i < md->n; i++) {
+			sn += (double)md->nt[i];
+			sx += (double)md->nt[i] * md->x[i];
+			sp += (double)md->k[i];
+		}
+		for (size_t i = 0; i < md->n; i++)
+			cov += (double)md->nt[i] * (md->x[i] - sx / sn) *
+			       ((double)md->k[i] / (double)md->nt[i] - sp / sn);
+		if (cov < 0)
+			md->sign = -1;
+	}
 }
 
 static void model_clear(struct model *md)
@@ -326,6 +344,12 @@ static int precheck(const struct model *md, const struct fit_opts *o, struct fit
 			snprintf(r->reason, sizeof r->reason,
 				 "the Weibull needs levels of 0 or more (found %g); use the logistic "
 				 "or normal shape", md->x[0]);
+			return -1;
+		}
+		if (md->sign < 0) {
+			snprintf(r->reason, sizeof r->reason,
+				 "proportion correct falls as the level rises, and the Weibull can only "
+				 "rise: use the logistic or normal shape");
 			return -1;
 		}
 		size_t npos = 0;
@@ -420,15 +444,20 @@ static int postcheck(const struct model *md, const double *th, struct fit_result
 		inside += F > 0.01 && F < 0.99;
 	}
 	if (below + above == md->n || (stalled && inside <= 1)) {
-		size_t j = 0, k = md->n - 1;
-		while (j + 1 < md->n && core(md, j + 1, th, &d0, &d1) <= 0.01)
+		/* Walk the levels in the direction F rises (index I of the walk is level AT(I)). */
+		size_t n = md->n, j = 0, k = n - 1;
+#define AT(i) (md->sign > 0 ? (i) : n - 1 - (i))
+		while (j + 1 < n && core(md, AT(j + 1), th, &d0, &d1) <= 0.01)
 			j++;
-		while (k > 0 && core(md, k - 1, th, &d0, &d1) >= 0.99)
+		while (k > 0 && core(md, AT(k - 1), th, &d0, &d1) >= 0.99)
 			k--;
+		double xa = md->x[AT(j)], xb = md->x[AT(k)];
+#undef AT
 		snprintf(r->reason, sizeof r->reason,
-			 "proportion correct rises from chance to ceiling between levels %g and %g "
-			 "with %s in between: the slope cannot be estimated (test more levels in "
-			 "that range, or fix the lapse rate)", md->x[j], md->x[k],
+			 "proportion correct %s between levels %g and %g with %s in between: the "
+			 "slope cannot be estimated (test more levels in that range, or fix the lapse "
+			 "rate)", md->sign > 0 ? "rises from chance to ceiling"
+					       : "falls from ceiling to chance", fmin(xa, xb), fmax(xa, xb),
 			 k > j + 1 ? "one level" : "no level");
 		return -1;
 	}

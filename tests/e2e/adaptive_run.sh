@@ -155,3 +155,60 @@ for t in 3.5 5 6.5; do
   expect_eq "resume after kill at ${t}s: complete" complete "$(q "$db" 'select status from sessions')"
   expect_eq "resume after kill at ${t}s: same sequence as uninterrupted" "$(q "$WORK/a.db" "$SEQ")" "$(q "$db" "$SEQ")"
 done
+
+# 5. `report` shows each staircase's threshold, recomputed here from the stored rows alone
+#    (Python/numpy): up-down, 10^(mean of log10 of the last 4 reversal levels) (Levitt 1971);
+#    QUEST, the posterior mean of Watson & Pelli's (1983) Weibull on a 0.01-log10 grid over the
+#    prior mean ± 5 SD, γ = 1/6, β = 3.5, δ = 0.01, with lower levels easier.
+expect_exit "report --json exits 0" 0 "$TACHIST" report --db "$WORK/a.db" --json
+expect_eq "report thresholds agree with an independent recomputation" "ok 4" "$($PY - "$WORK/rows.txt" "$WORK/last.out" <<'PYEOF'
+import json, math, sys
+import numpy as np
+rows = [l.strip().split('|') for l in open(sys.argv[1]) if l.strip()]
+rep = {(r['block'], r['staircase']): r for r in json.load(open(sys.argv[2]))['staircases']}
+bad = []
+# up-down: reversal levels from the answers (level shown on the trial that turned the track)
+for s in ('0', '1'):
+    run, last, rev = 0, 0, []
+    for b, st, lev, req, c in rows:
+        if b != '0' or st != s:
+            continue
+        move = 0
+        if c == '1':
+            run += 1
+            if run >= 2:
+                run, move = 0, -1
+        else:
+            run, move = 0, 1
+        if move:
+            if last and move != last:
+                rev.append(float(lev))
+            last = move
+    want = 10 ** np.mean(np.log10(rev[-4:]))
+    got = rep[(0, int(s))]['threshold']
+    if abs(got - want) > 1e-9 * want:
+        bad.append(('updown', s, got, want))
+# QUEST: x = -log10(level) grows as the task gets easier
+beta, delta, gamma, sd = 3.5, 0.01, 1 / 6, 0.3
+for s, m in (('0', 10.0), ('1', 25.0)):
+    mu = -math.log10(m)
+    lo = math.log10(m) - 5 * sd
+    n = int(math.floor(10 * sd / 0.01 + 1e-9)) + 1
+    grid = -(lo + 0.01 * np.arange(n))
+    logp = -0.5 * ((grid - mu) / sd) ** 2
+    for b, st, lev, req, c in rows:
+        if b != '1' or st != s:
+            continue
+        x = -math.log10(float(lev))
+        p = delta * gamma + (1 - delta) * (1 - (1 - gamma) * np.exp(-10 ** (beta * (x - grid))))
+        logp += np.log(p if c == '1' else 1 - p)
+    w = np.exp(logp - logp.max()); w /= w.sum()
+    want = 10 ** (-(w * grid).sum())
+    got = rep[(1, int(s))]['threshold']
+    if abs(got - want) > 1e-9 * want:
+        bad.append(('quest', s, got, want))
+print('ok', len(rep) if not bad else bad)
+PYEOF
+)"
+"$TACHIST" report --db "$WORK/a.db" >"$WORK/report.txt" 2>&1
+check "text report has the staircase table" grep -q '^Staircases' "$WORK/report.txt"

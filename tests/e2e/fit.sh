@@ -7,6 +7,8 @@ PY=/usr/bin/python3
 # Invented data: counts per level for 2AFC and 4AFC.
 printf 'level,n,k\n0.5,40,22\n1,40,25\n1.5,40,30\n2,40,35\n2.5,40,38\n3,40,39\n' >"$WORK/g2.csv"
 printf 'level,n,k\n0.1,60,17\n0.2,60,21\n0.3,60,33\n0.4,60,45\n0.5,60,52\n0.6,60,57\n' >"$WORK/g4.csv"
+# Accuracy that falls as the level (say a perturbation budget) rises.
+printf 'level,n,k\n0,40,39\n4,40,36\n8,40,30\n12,40,22\n16,40,13\n20,40,10\n' >"$WORK/fall.csv"
 # The 4AFC counts as one row per trial, without a header (level,correct).
 $PY - "$WORK/g4.csv" >"$WORK/t4.csv" <<'PYEOF'
 import csv, sys
@@ -47,7 +49,7 @@ for k in ("alpha", "beta", "lambda", "deviance"):
 # Reference: R glm, binomial family with psyphy's mafc.probit(m) link, is the cumulative normal
 # with guess rate 1/m and no lapse: P = 1/m + (1 - 1/m) * pnorm(b0 + b1 x), so alpha = -b0/b1 and
 # beta = 1/b1. Grouped counts for m = 2, trial rows for m = 4.
-for spec in "g2.csv 2 grouped" "t4.csv 4 trials"; do
+for spec in "g2.csv 2 grouped" "t4.csv 4 trials" "fall.csv 4 grouped"; do
   set -- $spec
   "$TACHIST" fit "$WORK/$1" --m "$2" --shape normal --lapse 0 --json --boot 0 >"$WORK/n.json"
   if [ "$3" = grouped ]; then
@@ -155,6 +157,17 @@ for f in eq step one; do
   "$TACHIST" fit "$WORK/$f.csv" --m 2 --json >"$WORK/x.json" 2>/dev/null
   check "no NaN in JSON ($f)" sh -c "! grep -qi 'nan' '$WORK/x.json'"
 done
+
+# Falling data: the Weibull cannot describe them and says so; the logistic gets beta < 0.
+expect_exit "falling data with the Weibull exits 1" 1 "$TACHIST" fit "$WORK/fall.csv" --m 4
+check "falling data: the Weibull says why" grep -q "falls as the level rises" "$WORK/last.err"
+"$TACHIST" fit "$WORK/fall.csv" --m 4 --shape logistic --json --boot 200 >"$WORK/fall.json"
+check "falling logistic: beta < 0, threshold inside its interval" $PY -c '
+import json, sys
+d = json.load(open(sys.argv[1]))
+assert d["status"] == "ok" and d["beta"] < 0
+assert d["threshold_lower"] < d["threshold"] < d["threshold_upper"]
+' "$WORK/fall.json"
 
 # Usage errors exit 2.
 expect_exit "missing --m is a usage error" 2 "$TACHIST" fit "$WORK/g2.csv"
