@@ -68,7 +68,7 @@ static void read_db(struct console *c, struct welcome *w)
 		if (open) {
 			size_t len = strlen(w->db_note);
 			snprintf(w->db_note + len, sizeof w->db_note - len,
-				 ", %zu interrupted or ended early (s to resume)", open);
+				 "; %zu can be resumed (s)", open);
 			w->db_role = CONSOLE_WARN;
 		}
 	}

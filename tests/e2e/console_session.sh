@@ -116,7 +116,7 @@ expect_eq "the CSV has a header and 36 rows" 37 "$lines"
 check "the CSV header is the export's" grep -q '^session_id,subject,block,block_trial,trial,image' "$WORK/out.csv"
 
 tm_keys q q
-expect_screen "back on the blocks screen" 'Block "main" done'
+expect_screen "back on the blocks screen" 'Block "warmup" done'
 tm_keys c
 expect_screen "closing asks first" "Close this session?"
 tm_keys y
