@@ -26,7 +26,7 @@ TOOLBIN  := $(TOOLSRC:tests/tools/%.c=$(BUILD)/tools/%)
 DEB_PKGS := gcc make pkg-config libncurses-dev libsdl2-dev libsdl2-image-dev libsqlite3-dev \
             libinih-dev libcsv-dev libcjson-dev libgsl-dev libcmocka-dev xvfb xauth \
             r-base-core r-cran-psyphy python3-numpy python3-scipy python3-statsmodels \
-            clang libclang-rt-14-dev librsvg2-bin sqlite3 tmux libxml2-utils
+            clang libclang-rt-14-dev librsvg2-bin sqlite3 tmux libxml2-utils time
 
 .PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets
 all: $(BUILD)/tachist

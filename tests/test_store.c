@@ -799,6 +799,53 @@ static void store_testMergeTwiceAddsNothing(void **state)
 	store_session_clear(&b);
 }
 
+/* A version-1 file (tests/data/store_v1.sql, the first layout) is migrated on open: the new
+ * columns read as their defaults and the old rows are intact. */
+static void store_testMigrateV1(void **state)
+{
+	(void)state;
+	char *db = path_in("v1.db");
+	char *v = sh_line("sqlite3 '%s' < tests/data/store_v1.sql >/dev/null && echo loaded", db);
+	assert_string_equal(v, "loaded");
+	free(v);
+	struct store *s = NULL;
+	char *err = NULL;
+	int rc = store_open(db, &s, &err);
+	if (rc)
+		fprintf(stderr, "# %s\n", err);
+	assert_int_equal(rc, 0);
+	v = sh_line("sqlite3 '%s' 'PRAGMA user_version'", db);
+	assert_int_equal(atoi(v), STORE_SCHEMA_VERSION);
+	free(v);
+	const char *id = "0f1e2d3c-4b5a-4968-8776-a5b4c3d2e1f0";
+	struct store_session ss;
+	assert_int_equal(store_session_get(s, id, &ss, &err), 0);
+	assert_string_equal(ss.subject, "OLD1");
+	assert_null(ss.observer);
+	assert_true(ss.distance_cm == 0);
+	assert_int_equal(ss.status, STORE_COMPLETE);
+	assert_true(ss.seed == 42);
+	store_session_clear(&ss);
+	struct store_trial *t;
+	size_t n;
+	assert_int_equal(store_trials_load(s, id, &t, &n, &err), 0);
+	assert_int_equal(n, 3);
+	assert_true(t[0].rt_ms == 512.5);   /* the fixture's values */
+	assert_string_equal(t[1].label_values[0], "B");
+	assert_false(t[0].anticipation);
+	assert_false(t[0].has_level_requested);
+	assert_int_equal(t[0].repeat_of, -1);
+	assert_int_equal(t[2].response, -1);
+	assert_true(t[2].timed_out);
+	store_trials_free(t, n);
+	/* The migrated file takes new trials. */
+	int64_t fl[1] = {1};
+	struct trial_record r = make_trial(3, fl, 1);
+	assert_int_equal(store_trial_put(s, id, &r, NULL, NULL, &err), 0);
+	store_close(s);
+	free(db);
+}
+
 /* describe copies what protocol, list and rig say. */
 static void store_testDescribe(void **state)
 {
@@ -841,6 +888,7 @@ int main(void)
 		cmocka_unit_test(store_testLocked),
 		cmocka_unit_test(store_testReadOnly),
 		cmocka_unit_test(store_testMergeTwiceAddsNothing),
+		cmocka_unit_test(store_testMigrateV1),
 		cmocka_unit_test(store_testDescribe),
 	};
 	return cmocka_run_group_tests(tests, setup, teardown);

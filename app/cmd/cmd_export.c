@@ -90,6 +90,7 @@ int cmd_export(int argc, char **argv)
 			return EXIT_PROBLEMS;
 		}
 	}
+	/* A large buffer set before any output; static, so it outlives the stream. */
 	static char big[1 << 16];
 	setvbuf(fo, big, _IOFBF, sizeof big);
 	rc = export_table(s, f, session, subject, fo, &st, &err);
@@ -106,9 +107,9 @@ int cmd_export(int argc, char **argv)
 		if (rc)
 			unlink(tmp);
 		free(tmp);
-	} else {
-		fflush(stdout);
-		setvbuf(stdout, NULL, _IOLBF, 0);
+	} else if (fflush(stdout) && !rc) {
+		rc = -1;
+		err = xasprintf("writing to stdout failed");
 	}
 	if (rc)
 		return fail(err);

@@ -68,6 +68,14 @@ int cmd_timing(int argc, char **argv)
 		rig_clear(&rig);
 		return EXIT_PROBLEMS;
 	}
+	const char *drv = display_driver(disp);
+	if (!headless && (!strcmp(drv, "dummy") || !strcmp(drv, "offscreen"))) {
+		fprintf(stderr, "tachist: no display to measure (SDL chose its '%s' video driver); run "
+			"from a desktop session, or add --headless to see the output format\n", drv);
+		display_close(disp);
+		rig_clear(&rig);
+		return EXIT_PROBLEMS;
+	}
 	struct dclock *c;
 	if (headless) {
 		struct dclock_virtual_opts vo = {.hz = rig.refresh_hz, .seed = 1};

@@ -230,6 +230,12 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		*err = xstrdup(e);
 		return -1;
 	}
+	const char *drv = display_driver(s->disp);
+	if (!o->headless && (!strcmp(drv, "dummy") || !strcmp(drv, "offscreen"))) {
+		*err = xasprintf("no display to show stimuli on (SDL chose its '%s' video driver); run "
+				 "with --headless for simulated timing, or from a desktop session", drv);
+		return -1;
+	}
 	int w, h, sw, sh;
 	display_size(s->disp, &w, &h);
 	display_screen_size(s->disp, &sw, &sh);
@@ -475,6 +481,14 @@ int run_measure_refresh(struct run_session *s, struct run_refresh *out, char **e
 		.dropped = m.dropped,
 	};
 	r.off_percent = (r.rate_hz - r.nominal_hz) / r.nominal_hz * 100.0;
+	if (!s->clock->simulated && m.median_ms < 1.0) {
+		/* No display refreshes every millisecond: present returned without waiting. */
+		*err = xasprintf("presenting does not wait for the display's refresh (frames %.3f ms apart, "
+				 "the rig says %.3f Hz), so frame timing would mean nothing; check the "
+				 "driver's vsync setting with `tachist timing`, or use --headless",
+				 m.median_ms, r.nominal_hz);
+		return -1;
+	}
 	r.mismatch = fabs(r.off_percent) > 1.0;
 	s->refresh = r;
 	s->refresh_hz = r.rate_hz;

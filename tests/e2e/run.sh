@@ -157,14 +157,20 @@ else
   notok "xvfb-run not installed"
 fi
 
-# 9. Bad options.
+# 9. No display and no --headless: refused (SDL's offscreen driver has no refresh to lock to).
+expect_exit "run without a display refuses" 1 env SDL_VIDEODRIVER=offscreen "$TACHIST" run "$P" \
+  --subject S01 --db "$WORK/j.db" --rig "$WORK/rig.ini" --observer "$MODEL"
+check "it says to use --headless" grep -q 'no display to show stimuli on.*--headless' "$WORK/last.err"
+expect_exit "timing without a display refuses" 1 env SDL_VIDEODRIVER=offscreen "$TACHIST" timing --rig "$WORK/rig.ini"
+
+# 10. Bad options.
 expect_exit "bad subject" 1 "$TACHIST" run "$P" --subject "S 01" --db "$WORK/i.db" --rig "$WORK/rig.ini" --headless
 expect_exit "bad model spec" 1 "$TACHIST" run "$P" --subject S01 --db "$WORK/i.db" --rig "$WORK/rig.ini" --headless --observer "model:shape=cubic"
 check "model spec message" grep -q "shape 'cubic'" "$WORK/last.err"
 expect_exit "--inject-drops needs --headless" 2 "$TACHIST" run "$P" --subject S01 --inject-drops 0.1
 expect_exit "run without a subject" 2 "$TACHIST" run "$P"
 
-# 10. timing, headless: exact 60 Hz from the virtual clock, a histogram.
+# 11. timing, headless: exact 60 Hz from the virtual clock, a histogram.
 expect_exit "timing --headless exits 0" 0 "$TACHIST" timing --headless --rig "$WORK/rig.ini" --frames 200
 check "timing estimates 60 Hz" grep -q 'estimated rate: 60.000 Hz' "$WORK/last.out"
 check "timing prints a histogram" grep -q '^ *16\.[0-9]*- *16\.[0-9]* *199 #' "$WORK/last.out"
