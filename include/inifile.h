@@ -12,7 +12,7 @@
 #include "diag.h"
 
 /* Called once per section header (KEY and VALUE NULL; SECTION as written between the brackets,
- * trimmed), once per KEY = VALUE (both trimmed, inline " ;" comments removed), and with SECTION,
+ * trimmed), once per KEY = VALUE (SECTION the current one, trimmed; KEY and VALUE trimmed, inline " ;" comments removed), and with SECTION,
  * KEY and VALUE all NULL for a broken header (its keys should then be skipped, since nobody can
  * tell which section they were meant for). The return value is ignored. */
 typedef int (*inifile_fn)(void *user, const char *section, const char *key, const char *value,

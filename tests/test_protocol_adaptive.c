@@ -265,6 +265,35 @@ static void protocol_adaptive_testWholeFile(void **state)
 	       "t.ini:20: warning: [adaptive spare] is not used by any block (adaptive = spare)\n");
 }
 
+/* Block keys that adaptive blocks do not use are warned about at the block's line. */
+static void protocol_adaptive_testBlockKeysIgnored(void **state)
+{
+	(void)state;
+	char *text = with("repeats = 2\n"                /* block main, line 14 */
+			  "repeat_faults = yes\n"
+			  "max_run = 3\n"
+			  "[adaptive stairs]\n"
+			  "rule = quest\n"
+			  "prior_mean = 1\n"
+			  "trials = 5\n");
+	struct protocol p;
+	struct diag_list d;
+	diag_init(&d);
+	assert_int_equal(protocol_parse("t.ini", text, &p, &d), 0);
+	char *msgs = all(&d);
+	assert_string_equal(msgs,
+			    "t.ini:11: warning: block 'main': repeat_faults does not apply to adaptive "
+			    "blocks (every trial counts for its staircase as shown)\n"
+			    "t.ini:11: warning: block 'main': repeats does not apply to adaptive blocks "
+			    "(the rule's trials sets the length)\n"
+			    "t.ini:11: warning: block 'main': order and max_run do not apply to adaptive "
+			    "blocks (staircases take turns in random rounds)\n");
+	free(msgs);
+	free(text);
+	protocol_clear(&p);
+	diag_clear(&d);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
@@ -273,6 +302,7 @@ int main(void)
 		cmocka_unit_test(protocol_adaptive_testBadValues),
 		cmocka_unit_test(protocol_adaptive_testMissingAndMisplaced),
 		cmocka_unit_test(protocol_adaptive_testWholeFile),
+		cmocka_unit_test(protocol_adaptive_testBlockKeysIgnored),
 	};
 	return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -18,6 +18,7 @@ struct reader {
 	const char *p;          /* next unread byte */
 	int line;               /* line last handed to inih */
 	int bad;                /* a syntax problem was reported */
+	char section[INIFILE_MAX_LINE + 1];   /* current section name, trimmed */
 	inifile_fn fn;
 	void *user;
 	struct diag_list *d;
@@ -79,6 +80,7 @@ static void check_line(struct reader *r, const char *s, size_t len)
 		while (b > a && isspace((unsigned char)s[b - 1])) b--;
 		memcpy(name, s + a, b - a);
 		name[b - a] = '\0';
+		memcpy(r->section, name, b - a + 1);
 		r->fn(r->user, name, NULL, NULL, r->line);
 		return;
 	}
@@ -138,14 +140,15 @@ static int on_entry(void *user, const char *section, const char *name, const cha
 		r->bad = 1;
 		return 1;
 	}
-	r->fn(r->user, section, name, value, r->line);
+	(void)section;   /* inih's copy is untrimmed; the reader keeps the trimmed one */
+	r->fn(r->user, r->section, name, value, r->line);
 	return 1;
 }
 
 int inifile_parse(const char *path, const char *text, inifile_fn fn, void *user,
 		  struct diag_list *d)
 {
-	struct reader r = {path, text, 0, 0, fn, user, d};
+	struct reader r = {.path = path, .p = text, .fn = fn, .user = user, .d = d};
 	int rc = ini_parse_stream(next_line, &r, on_entry, &r);
 	if (rc > 0 && !r.bad) {
 		diag_add(d, DIAG_ERROR, path, rc, "this line cannot be read as INI");

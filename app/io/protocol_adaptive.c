@@ -374,6 +374,10 @@ static void adaptive_finish(struct protocol_ctx *c)
 			protocol_ctx_warning(c, pb->line, "block '%s': repeats does not apply to "
 					     "adaptive blocks (the rule's trials sets the length)",
 					     pb->name);
+		if (pb->order == ORDER_FIXED || pb->max_run > 0)
+			protocol_ctx_warning(c, pb->line, "block '%s': order and max_run do not apply "
+					     "to adaptive blocks (staircases take turns in random "
+					     "rounds)", pb->name);
 	}
 }
 

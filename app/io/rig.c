@@ -29,6 +29,9 @@ struct rig_key {
 	const char *unit;
 };
 
+/* Rows of keys[] that the cross-checks below refer to. */
+enum { K_CORNER = 8, K_SIZE_PX = 9 };
+
 static const struct rig_key keys[] = {
 	{"screen", "name", RT_TEXT, offsetof(struct rig, name), 0, 0, 0, 0, NULL},
 	{"screen", "width_cm", RT_NUMBER, offsetof(struct rig, width_cm), 0, 1000, 1, 1, "cm"},
@@ -42,6 +45,7 @@ static const struct rig_key keys[] = {
 	{"marker", "size_px", RT_INT, offsetof(struct rig, marker_px), 1, 500, 0, 0, "px"},
 };
 #define NKEYS (sizeof keys / sizeof keys[0])
+_Static_assert(NKEYS > K_SIZE_PX, "keys[] rows K_CORNER and K_SIZE_PX");
 
 static const char *const corners[] = {"none", "top-left", "top-right", "bottom-left",
 				      "bottom-right"};
@@ -193,12 +197,12 @@ int rig_parse(const char *path, const char *text, struct rig *r, struct diag_lis
 				err(&c, c.section_line[0], "missing required key '%s' in [screen]",
 				    keys[i].name);
 	}
-	if (c.seen[9] && !c.seen[8])   /* size_px without corner */
-		diag_add(d, DIAG_WARNING, path, c.seen[9], "size_px is ignored unless corner is set");
+	if (c.seen[K_SIZE_PX] && !c.seen[K_CORNER])
+		diag_add(d, DIAG_WARNING, path, c.seen[K_SIZE_PX], "size_px is ignored unless corner is set");
 	int errors = diag_count(d, DIAG_ERROR) > errors0;
 	if (!errors && r->marker_corner != RIG_MARKER_NONE &&
 	    (r->marker_px * 2 > r->width_px || r->marker_px * 2 > r->height_px))
-		err(&c, c.seen[9] ? c.seen[9] : c.seen[8], "marker of %d px does not fit in a corner "
+		err(&c, c.seen[K_SIZE_PX] ? c.seen[K_SIZE_PX] : c.seen[K_CORNER], "marker of %d px does not fit in a corner "
 		    "of a %dx%d px screen", r->marker_px, r->width_px, r->height_px);
 	if (!errors) {
 		double h = r->width_px / r->width_cm, v = r->height_px / r->height_cm;

@@ -1,0 +1,346 @@
+/* blocks — the open session's blocks: trial counts, estimated durations, practice marked, what has
+ * been run; start, skip or repeat a block; close the session. Also where the console says how the
+ * presentation side is doing: still opening, failed to open (with FILE:LINE problems), ended
+ * unexpectedly (its session marked interrupted), or closed. */
+#include "console.h"
+
+#include <curses.h>
+#include <math.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "diag.h"
+#include "run.h"
+#include "store.h"
+
+struct blocks {
+	int sel;
+	bool chose;                       /* selection placed on the first block to run */
+	long seen_summaries;
+	bool skipped[CONSOLE_MAX_BLOCKS];
+	int pending;                      /* block waiting for a yes/no */
+};
+
+static const struct console_key blocks_keys[] = {
+	{"Up/Down", "choose"},
+	{"Enter", "start block"},
+	{"k", "skip"},
+	{"a", "run again"},
+	{"r", "results"},
+	{"c", "close session"},
+};
+
+static void fmt_duration(char *buf, size_t len, double s)
+{
+	if (!(s >= 0) || !isfinite(s)) {
+		snprintf(buf, len, "-");
+		return;
+	}
+	long t = lround(s);
+	if (t >= 3600)
+		snprintf(buf, len, "%ld:%02ld:%02ld", t / 3600, t / 60 % 60, t % 60);
+	else
+		snprintf(buf, len, "%ld:%02ld", t / 60, t % 60);
+}
+
+static int first_to_run(const struct console_pres_state *st, const struct blocks *b)
+{
+	for (size_t i = 0; i < st->nblocks; i++)
+		if (st->blocks[i].stored < st->blocks[i].ntrials && !b->skipped[i])
+			return (int)i;
+	return st->nblocks ? (int)st->nblocks - 1 : 0;
+}
+
+static void summary_line(char *buf, size_t len, const struct console_summary *s)
+{
+	char acc[32] = "no answers", rt[32] = "";
+	if (isfinite(s->accuracy))
+		snprintf(acc, sizeof acc, "%.0f%% correct", 100.0 * s->accuracy);
+	if (isfinite(s->median_rt_ms))
+		snprintf(rt, sizeof rt, ", median RT %.0f ms", s->median_rt_ms);
+	static const char *const how[] = {"done", "skipped by the observer", "ended",
+					  "interrupted", "stopped by an error"};
+	const char *h = s->result >= 0 && s->result <= 4 ? how[s->result] : "over";
+	snprintf(buf, len, "Block \"%s\" %s: %zu trials, %s%s, %zu timing fault%s", s->name, h,
+		 s->trials, acc, rt, s->faults, s->faults == 1 ? "" : "s");
+}
+
+static void draw_state(struct console *c, const struct console_pres_state *st, int y)
+{
+	int w = COLS - 4;
+	switch (st->phase) {
+	case CONSOLE_PRES_OPENING:
+		console_put(c, y, 2, w, CONSOLE_WARN,
+			    "Opening the session: loading the files and the observer's display ...");
+		return;
+	case CONSOLE_PRES_CRASHED: {
+		char buf[400], how[80];
+		if (st->term_signal)
+			snprintf(how, sizeof how, "signal %d, %s", st->term_signal,
+				 strsignal(st->term_signal));
+		else
+			snprintf(how, sizeof how, "exit code %d", st->exit_code);
+		snprintf(buf, sizeof buf,
+			 "The presentation process stopped unexpectedly (%s). Every trial stored "
+			 "before that is kept; the session is marked interrupted and can be resumed "
+			 "from the sessions list.", how);
+		y += console_wrap(c, y, 2, w, 4, CONSOLE_BAD, buf);
+		break;
+	}
+	case CONSOLE_PRES_FAILED:
+		y += console_wrap(c, y, 2, w, 4, CONSOLE_BAD,
+				  st->error[0] ? st->error : "The session could not go on.");
+		break;
+	case CONSOLE_PRES_CLOSED:
+		console_put(c, y++, 2, w, CONSOLE_OK,
+			    "Session closed. Every trial is in the database; r shows the results.");
+		if (st->error[0])
+			y += console_wrap(c, y, 2, w, 2, CONSOLE_BAD, st->error);
+		break;
+	case CONSOLE_PRES_CLOSING:
+		console_put(c, y, 2, w, CONSOLE_WARN, "Closing the session ...");
+		return;
+	default:
+		return;
+	}
+	for (int i = 0; i < st->ndiags && y < LINES - 3; i++)
+		console_put(c, y++, 4, w - 2, CONSOLE_BAD, st->diags[i]);
+	if (st->phase != CONSOLE_PRES_CLOSED)
+		for (int i = st->nlog > 3 ? st->nlog - 3 : 0; i < st->nlog && y < LINES - 3; i++)
+			console_put(c, y++, 4, w - 2, CONSOLE_DIM, st->log[i]);
+}
+
+static void blocks_draw(struct console *c, void *sv)
+{
+	struct blocks *b = sv;
+	struct console_pres *p = console_presenter(c);
+	if (!p) {
+		console_put(c, 2, 2, COLS - 4, CONSOLE_DIM, "No session is open.");
+		return;
+	}
+	const struct console_pres_state *st = console_pres_state(p);
+	int y = console_body_top();
+	if (st->session_id[0])
+		console_putf(c, y++, 2, COLS - 4, CONSOLE_HEAD, "Session %.8s   seed %llu   %s timing",
+			     st->session_id, (unsigned long long)st->seed, st->timing_mode);
+	y++;
+	if (st->nblocks) {
+		console_put(c, y++, 2, COLS - 4, CONSOLE_DIM,
+			    "  #  block                  trials   about    kind       state");
+		for (size_t i = 0; i < st->nblocks && y < LINES - 6; i++, y++) {
+			const struct console_block *k = &st->blocks[i];
+			char dur[32], state[80];
+			fmt_duration(dur, sizeof dur, k->est_seconds);
+			if (k->stored >= k->ntrials && k->ntrials)
+				snprintf(state, sizeof state, "done");
+			else if (k->stored)
+				snprintf(state, sizeof state, "%zu of %zu stored", k->stored, k->ntrials);
+			else if (b->skipped[i])
+				snprintf(state, sizeof state, "skipped");
+			else
+				snprintf(state, sizeof state, "not run");
+			if (st->block_has_result[i] && isfinite(st->block_result[i].accuracy)) {
+				size_t n = strlen(state);
+				snprintf(state + n, sizeof state - n, ", %.0f%% correct",
+					 100.0 * st->block_result[i].accuracy);
+			}
+			if (k->runs > 1) {
+				size_t n = strlen(state);
+				snprintf(state + n, sizeof state - n, ", run %d times", k->runs);
+			}
+			bool sel = (int)i == b->sel && st->phase == CONSOLE_PRES_IDLE;
+			console_putf(c, y, 2, COLS - 4, sel ? CONSOLE_PICK : CONSOLE_PLAIN,
+				     "%s%2zu  %-22.22s %6zu   %6s   %-9s  %s", sel ? ">" : " ", i + 1,
+				     k->name, k->ntrials, dur,
+				     k->practice ? "practice" : k->adaptive ? "adaptive" : "", state);
+		}
+		y++;
+	}
+	if (st->has_summary && y < LINES - 3) {
+		char buf[300];
+		summary_line(buf, sizeof buf, &st->summary);
+		console_put(c, y++, 2, COLS - 4, st->summary.result == 0 ? CONSOLE_OK : CONSOLE_WARN,
+			    buf);
+		if (st->summary.error[0])
+			console_put(c, y++, 2, COLS - 4, CONSOLE_BAD, st->summary.error);
+		if (st->summary.refresh_mismatch)
+			console_putf(c, y++, 2, COLS - 4, CONSOLE_WARN,
+				     "measured refresh %.2f Hz differs from the rig's %.2f Hz by more "
+				     "than 1%%", st->summary.refresh_hz, st->summary.refresh_nominal_hz);
+		y++;
+	}
+	draw_state(c, st, y);
+}
+
+/* Blocks skipped earlier in a resumed session, from its "skip" events (detail = block name). */
+static void load_skips(struct console *c, struct blocks *b, const struct console_pres_state *st)
+{
+	struct store *db = NULL;
+	struct store_event_row *ev = NULL;
+	size_t n = 0;
+	if (store_open(console_options(c)->db_path, &db, NULL) == 0 &&
+	    store_events_load(db, st->session_id, &ev, &n, NULL) == 0)
+		for (size_t i = 0; i < n; i++)
+			for (size_t k = 0; k < st->nblocks && !strcmp(ev[i].kind, "skip"); k++)
+				if (ev[i].detail && !strcmp(ev[i].detail, st->blocks[k].name))
+					b->skipped[k] = true;
+	store_events_free(ev, n);
+	store_close(db);
+}
+
+static bool blocks_tick(struct console *c, void *sv)
+{
+	struct blocks *b = sv;
+	struct console_pres *p = console_presenter(c);
+	if (!p)
+		return false;
+	const struct console_pres_state *st = console_pres_state(p);
+	if (!b->chose && st->phase == CONSOLE_PRES_IDLE && st->nblocks) {
+		load_skips(c, b, st);
+		b->sel = first_to_run(st, b);
+		b->chose = true;
+		return true;
+	}
+	if (st->nsummaries != b->seen_summaries) {
+		b->seen_summaries = st->nsummaries;
+		b->sel = first_to_run(st, b);
+		return true;
+	}
+	return false;
+}
+
+static void start_block(struct console *c, int i)
+{
+	struct console_pres *p = console_presenter(c);
+	if (console_pres_run_block(p, i) != 0) {
+		console_say(c, CONSOLE_BAD, "the session cannot start a block now");
+		return;
+	}
+	console_live_push(c);
+}
+
+static void answer_again(struct console *c, void *ud, bool yes)
+{
+	struct blocks *b = ud;
+	if (yes)
+		start_block(c, b->pending);
+}
+
+static void answer_skip(struct console *c, void *ud, bool yes)
+{
+	struct blocks *b = ud;
+	if (!yes)
+		return;
+	struct console_pres *p = console_presenter(c);
+	if (console_pres_skip_block(p, b->pending) == 0) {
+		b->skipped[b->pending] = true;
+		console_say(c, CONSOLE_OK, "block %d skipped (recorded as an event)", b->pending + 1);
+		const struct console_pres_state *st = console_pres_state(p);
+		b->sel = first_to_run(st, b);
+	}
+}
+
+static void answer_close(struct console *c, void *ud, bool yes)
+{
+	(void)ud;
+	if (!yes)
+		return;
+	console_pres_close(console_presenter(c));
+}
+
+static bool blocks_key(struct console *c, void *sv, int ch)
+{
+	struct blocks *b = sv;
+	struct console_pres *p = console_presenter(c);
+	const struct console_pres_state *st = p ? console_pres_state(p) : NULL;
+	bool idle = st && st->phase == CONSOLE_PRES_IDLE;
+	bool over = !st || st->phase == CONSOLE_PRES_CLOSED || st->phase == CONSOLE_PRES_FAILED ||
+		    st->phase == CONSOLE_PRES_CRASHED;
+	switch (ch) {
+	case KEY_UP:
+		if (b->sel > 0)
+			b->sel--;
+		return true;
+	case KEY_DOWN:
+		if (st && (size_t)b->sel + 1 < st->nblocks)
+			b->sel++;
+		return true;
+	case '\n':
+	case '\r':
+	case KEY_ENTER:
+		if (!idle) {
+			console_say(c, CONSOLE_WARN, "the session is not open for blocks");
+			return true;
+		}
+		if (st->blocks[b->sel].ntrials && st->blocks[b->sel].stored >= st->blocks[b->sel].ntrials)
+			return blocks_key(c, sv, 'a');
+		start_block(c, b->sel);
+		return true;
+	case 'a':
+	case 'A': {
+		if (!idle)
+			return true;
+		b->pending = b->sel;
+		char q[160];
+		snprintf(q, sizeof q, "Run block %d (\"%s\") again? Its trials are stored again with "
+			 "new trial numbers.", b->sel + 1, st->blocks[b->sel].name);
+		console_confirm(c, q, answer_again, b);
+		return true;
+	}
+	case 'k':
+	case 'K': {
+		if (!idle)
+			return true;
+		b->pending = b->sel;
+		char q[160];
+		snprintf(q, sizeof q, "Skip block %d (\"%s\")?", b->sel + 1, st->blocks[b->sel].name);
+		console_confirm(c, q, answer_skip, b);
+		return true;
+	}
+	case 'r':
+	case 'R':
+		if (st && st->session_id[0])
+			console_results_push(c, st->session_id);
+		return true;
+	case 'c':
+	case 'C':
+	case 'q':
+	case 'Q':
+	case 27:
+		if (over) {
+			console_set_presenter(c, NULL);
+			console_pop(c);
+			return true;
+		}
+		if (idle)
+			console_confirm(c, "Close this session? Blocks not run stay open; the session "
+					   "can be resumed later from the sessions list.",
+					answer_close, b);
+		return true;
+	default:
+		return false;
+	}
+}
+
+static void blocks_destroy(void *st)
+{
+	free(st);
+}
+
+void console_blocks_push(struct console *c)
+{
+	struct blocks *b = xcalloc(1, sizeof *b);
+	struct console_screen s = {
+		.title = "blocks",
+		.keys = blocks_keys,
+		.nkeys = sizeof blocks_keys / sizeof blocks_keys[0],
+		.draw = blocks_draw,
+		.key = blocks_key,
+		.tick = blocks_tick,
+		.destroy = blocks_destroy,
+		.st = b,
+	};
+	console_push(c, &s);
+}

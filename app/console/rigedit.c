@@ -1,0 +1,293 @@
+/* rigedit — the rig profile as numbers the experimenter can change: screen size in cm and px,
+ * viewing distance, refresh rate, with pixels per degree and the protocol's stimulus size in
+ * pixels (and the degrees those pixels really subtend) worked out as the numbers change. Saving
+ * writes a rig INI (the keys of README "Rig profile", validated by rig_parse first, so a saved
+ * file always loads) to a path the experimenter types, by default the profile the program looks
+ * for first ($XDG_CONFIG_HOME/tachist/rig.ini), and hands the path back to the set-up form. */
+#include "console.h"
+
+#include <curses.h>
+#include <errno.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include "diag.h"
+#include "geom.h"
+#include "rig.h"
+
+enum row { ROW_WCM, ROW_HCM, ROW_WPX, ROW_HPX, ROW_DIST, ROW_HZ, ROW_PATH, ROW_COUNT };
+
+struct rigedit {
+	struct console_field f[ROW_COUNT];
+	int row;
+	struct rig base;            /* the profile as loaded: name, display and marker are kept */
+	bool have_base;
+	double size_deg;            /* the protocol's stimulus size, 0 when unknown */
+	void (*saved)(struct console *c, void *ud, const char *path);
+	void *ud;
+	char problem[400];
+	char *dflt;                 /* the profile path the program looks for first */
+};
+
+static const struct console_key rig_keys[] = {
+	{"Up/Down", "move"},
+	{"Enter", "edit"},
+	{"s", "save and use"},
+	{"Esc", "back without saving"},
+};
+
+static const char *const labels[ROW_COUNT] = {
+	"Width (cm)", "Height (cm)", "Width (px)", "Height (px)", "Distance (cm)", "Refresh (Hz)",
+	"Save to",
+};
+
+/* The rig INI text the fields describe (malloc'd); name, display and marker from the base. */
+static char *rig_text(const struct rigedit *e)
+{
+	const struct rig *b = e->have_base ? &e->base : NULL;
+	static const char *const corners[] = {"none", "top-left", "top-right", "bottom-left",
+					      "bottom-right"};
+	int corner = b ? (int)b->marker_corner : 0;
+	if (corner < 0 || corner > 4)
+		corner = 0;
+	return xasprintf("; Rig profile written by the tachist console.\n"
+			 "[screen]\nname = %s\nwidth_cm = %s\nheight_cm = %s\nwidth_px = %s\n"
+			 "height_px = %s\ndistance_cm = %s\nrefresh_hz = %s\ndisplay = %d\n\n"
+			 "[marker]\ncorner = %s\nsize_px = %d\n",
+			 b && b->name ? b->name : "bench", e->f[ROW_WCM].text, e->f[ROW_HCM].text,
+			 e->f[ROW_WPX].text, e->f[ROW_HPX].text, e->f[ROW_DIST].text,
+			 e->f[ROW_HZ].text, b ? b->display : 0, corners[corner],
+			 b && b->marker_px > 0 ? b->marker_px : 40);
+}
+
+/* Parses the fields as a rig; fills R (cleared by the caller) or PROBLEM. */
+static int as_rig(struct rigedit *e, struct rig *r)
+{
+	char *text = rig_text(e);
+	struct diag_list d;
+	diag_init(&d);
+	int rc = rig_parse("(rig being edited)", text, r, &d);
+	e->problem[0] = '\0';
+	for (size_t i = 0; i < d.n; i++)
+		if (d.v[i].level == DIAG_ERROR) {
+			snprintf(e->problem, sizeof e->problem, "%s", d.v[i].msg);
+			break;
+		}
+	diag_clear(&d);
+	free(text);
+	return rc;
+}
+
+static void rig_draw(struct console *c, void *st)
+{
+	struct rigedit *e = st;
+	int y = console_body_top(), vx = 18, w = COLS - vx - 2;
+	console_put(c, y, 2, COLS - 4, CONSOLE_HEAD, "The observer's display");
+	y += 2;
+	for (int row = 0; row < ROW_COUNT; row++) {
+		bool f = e->row == row;
+		if (row == ROW_PATH)
+			y++;
+		console_put(c, y, 0, 2, CONSOLE_HEAD, f ? (console_utf8(c) ? "\u25b8" : ">") : "");
+		console_put(c, y, 2, vx - 2, f ? CONSOLE_HEAD : CONSOLE_DIM, labels[row]);
+		console_field_draw(c, &e->f[row], y, vx, row == ROW_PATH ? w : 12, f);
+		y += 2;
+	}
+	struct rig r;
+	memset(&r, 0, sizeof r);
+	if (as_rig(e, &r) == 0) {
+		double deg1 = 0;
+		console_putf(c, y++, 2, COLS - 4, CONSOLE_OK, "%.2f px per degree at the centre of the screen",
+			     geom_px_per_deg(&r));
+		if (e->size_deg > 0) {
+			int px = geom_deg_to_px(&r, e->size_deg, &deg1);
+			console_putf(c, y++, 2, COLS - 4, CONSOLE_OK,
+				     "the protocol's stimulus of %.2f deg is %d px, which subtends %.3f deg",
+				     e->size_deg, px, deg1);
+		}
+		console_putf(c, y++, 2, COLS - 4, CONSOLE_DIM, "one frame lasts %.3f ms",
+			     1000.0 / r.refresh_hz);
+	} else {
+		console_wrap(c, y, 2, COLS - 4, 2, CONSOLE_BAD, e->problem);
+	}
+	rig_clear(&r);
+}
+
+static int write_file(const char *path, const char *text, char *err, size_t len)
+{
+	char *part = xasprintf("%s.part", path);
+	FILE *f = fopen(part, "w");
+	int rc = -1;
+	if (!f) {
+		snprintf(err, len, "cannot write %s: %s", part, strerror(errno));
+		goto out;
+	}
+	fputs(text, f);
+	if (fclose(f) != 0) {
+		snprintf(err, len, "cannot write %s: %s", part, strerror(errno));
+		remove(part);
+		goto out;
+	}
+	if (rename(part, path) != 0) {
+		snprintf(err, len, "cannot rename %s: %s", part, strerror(errno));
+		remove(part);
+		goto out;
+	}
+	rc = 0;
+out:
+	free(part);
+	return rc;
+}
+
+/* Makes the folders of the default profile path (config folder, then tachist/). */
+static void make_default_folder(const char *path)
+{
+	char *dir = xstrdup(path);
+	char *slash = strrchr(dir, '/');
+	if (slash) {
+		*slash = '\0';
+		char *parent = strrchr(dir, '/');
+		if (parent && parent != dir) {
+			*parent = '\0';
+			mkdir(dir, 0755);
+			*parent = '/';
+		}
+		mkdir(dir, 0755);
+	}
+	free(dir);
+}
+
+static void save(struct console *c, struct rigedit *e)
+{
+	if (!strcmp(e->f[ROW_PATH].text, e->dflt))
+		make_default_folder(e->dflt);
+	for (int row = 0; row < ROW_COUNT; row++) {
+		struct console_field *f = &e->f[row];
+		if (console_field_check(f, f->text, f->msg, sizeof f->msg) != 0) {
+			e->row = row;
+			return;
+		}
+	}
+	struct rig r;
+	memset(&r, 0, sizeof r);
+	if (as_rig(e, &r) != 0) {
+		console_say(c, CONSOLE_BAD, "not saved: %s", e->problem);
+		rig_clear(&r);
+		return;
+	}
+	rig_clear(&r);
+	char *text = rig_text(e);
+	char err[600];
+	const char *path = e->f[ROW_PATH].text;
+	if (write_file(path, text, err, sizeof err) != 0) {
+		console_say(c, CONSOLE_BAD, "%s", err);
+		free(text);
+		return;
+	}
+	free(text);
+	char *copy = xstrdup(path);
+	void (*saved)(struct console *, void *, const char *) = e->saved;
+	void *ud = e->ud;
+	console_pop(c);
+	if (saved)
+		saved(c, ud, copy);
+	console_say(c, CONSOLE_OK, "rig saved to %s", copy);
+	free(copy);
+}
+
+static bool rig_key(struct console *c, void *st, int ch)
+{
+	struct rigedit *e = st;
+	struct console_screen *me = console_top(c);
+	struct console_field *f = &e->f[e->row];
+	if (f->editing) {
+		if (console_field_key(f, ch) != CONSOLE_FIELD_GOING)
+			me->editing = false;
+		return true;
+	}
+	switch (ch) {
+	case KEY_UP:
+		e->row = (e->row + ROW_COUNT - 1) % ROW_COUNT;
+		return true;
+	case KEY_DOWN:
+	case '\t':
+		e->row = (e->row + 1) % ROW_COUNT;
+		return true;
+	case '\n':
+	case '\r':
+	case KEY_ENTER:
+		console_field_begin(f);
+		me->editing = true;
+		return true;
+	case 's':
+	case 'S':
+		save(c, e);
+		return true;
+	case 'q':
+	case 'Q':
+	case 27:
+		console_pop(c);
+		return true;
+	default:
+		return false;
+	}
+}
+
+static void rig_destroy(void *st)
+{
+	struct rigedit *e = st;
+	rig_clear(&e->base);
+	free(e->dflt);
+	free(e);
+}
+
+static void number_field(struct console_field *f, const char *label, enum console_field_kind k,
+			 double v, double min, double max)
+{
+	char buf[32] = "";
+	if (v > 0)
+		snprintf(buf, sizeof buf, k == CONSOLE_INTEGER ? "%.0f" : "%g", v);
+	console_field_init(f, label, k, 10, buf);
+	f->min = min;
+	f->max = max;
+}
+
+void console_rig_push(struct console *c, const char *path, double size_deg,
+		      void (*saved)(struct console *c, void *ud, const char *path), void *ud)
+{
+	struct rigedit *e = xcalloc(1, sizeof *e);
+	e->size_deg = size_deg;
+	e->saved = saved;
+	e->ud = ud;
+	struct diag_list d;
+	diag_init(&d);
+	if (path && *path && rig_load(path, &e->base, &d) == 0)
+		e->have_base = true;
+	diag_clear(&d);
+	const struct rig *b = &e->base;
+	/* Ranges as the rig parser accepts them (README "Rig profile"). */
+	number_field(&e->f[ROW_WCM], "width", CONSOLE_NUMBER, b->width_cm, 0.1, 1000);
+	number_field(&e->f[ROW_HCM], "height", CONSOLE_NUMBER, b->height_cm, 0.1, 1000);
+	number_field(&e->f[ROW_WPX], "width", CONSOLE_INTEGER, b->width_px, 1, 100000);
+	number_field(&e->f[ROW_HPX], "height", CONSOLE_INTEGER, b->height_px, 1, 100000);
+	number_field(&e->f[ROW_DIST], "distance", CONSOLE_NUMBER, b->distance_cm, 0.1, 10000);
+	number_field(&e->f[ROW_HZ], "refresh", CONSOLE_NUMBER, b->refresh_hz, 20, 1000);
+	const char *xdg = getenv("XDG_CONFIG_HOME"), *home = getenv("HOME");
+	char *dflt = xdg && *xdg ? xasprintf("%s/tachist/rig.ini", xdg)
+		   : home && *home ? xasprintf("%s/.config/tachist/rig.ini", home)
+				   : xstrdup("rig.ini");
+	console_field_init(&e->f[ROW_PATH], "path", CONSOLE_OUTPATH, 400, dflt);
+	e->dflt = dflt;
+	struct console_screen s = {
+		.title = "rig",
+		.keys = rig_keys,
+		.nkeys = sizeof rig_keys / sizeof rig_keys[0],
+		.draw = rig_draw,
+		.key = rig_key,
+		.destroy = rig_destroy,
+		.st = e,
+	};
+	console_push(c, &s);
+}

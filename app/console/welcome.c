@@ -1,0 +1,93 @@
+/* welcome — the console's first screen: the safety cautions every session starts from, the
+ * database and rig in use, and the ways in (set up a new session, or the sessions already stored).
+ * It is the bottom of the screen stack; leaving it leaves the console. */
+#include "console.h"
+
+#include <curses.h>
+#include <stdio.h>
+#include <sys/stat.h>
+
+static const struct console_key welcome_keys[] = {
+	{"Enter", "set up a session"},
+	{"s", "stored sessions"},
+	{"q", "leave"},
+};
+
+static const struct {
+	const char *head, *text;
+} cautions[] = {
+	{"Flashing images",
+	 "Brief, high-contrast flashes can trigger seizures in people with photosensitive "
+	 "epilepsy. Screen observers as your protocol requires and stop at once if anyone "
+	 "feels unwell."},
+	{"Approval and consent",
+	 "Run observers only under your institution's ethics approval (IRB or ethics "
+	 "committee) and after their informed consent. Your review board and local rules come "
+	 "before anything this program says."},
+	{"Pseudonymous IDs",
+	 "Subject IDs are letters and digits only. Never use names, initials or birth dates; "
+	 "keep the key that links IDs to people away from the data."},
+};
+
+static void welcome_draw(struct console *c, void *st)
+{
+	(void)st;
+	const struct console_options *o = console_options(c);
+	int y = console_body_top(), w = COLS - 4;
+	console_put(c, y++, 2, w, CONSOLE_HEAD, "Before anyone sits down");
+	y++;
+	for (size_t i = 0; i < sizeof cautions / sizeof cautions[0]; i++) {
+		console_put(c, y, 2, w, CONSOLE_WARN, console_utf8(c) ? "\u25b2" : "!");
+		console_put(c, y++, 4, w - 2, CONSOLE_WARN, cautions[i].head);
+		y += console_wrap(c, y, 4, w - 2, 3, CONSOLE_PLAIN, cautions[i].text);
+	}
+	y++;
+	struct stat sb;
+	bool db_exists = stat(o->db_path, &sb) == 0;
+	console_put(c, y, 2, 10, CONSOLE_DIM, "Database");
+	int x = 12 + console_put(c, y, 12, w - 10, CONSOLE_PLAIN, o->db_path);
+	console_put(c, y++, x + 2, COLS - x - 3, CONSOLE_DIM,
+		    db_exists ? "" : "(a new file; made when the first session starts)");
+	console_put(c, y, 2, 10, CONSOLE_DIM, "Rig");
+	x = 12 + console_put(c, y, 12, w - 10, CONSOLE_PLAIN,
+			     o->rig_path ? o->rig_path : "(none found)");
+	if (o->rig_is_fallback)
+		console_put(c, y, x + 2, COLS - x - 3, CONSOLE_WARN,
+			    "demo rig: describe your own display before real sessions");
+	y += 2;
+	console_put(c, y, 2, w, CONSOLE_OK, "Press Enter when you have read this to set up a session.");
+}
+
+static bool welcome_key(struct console *c, void *st, int ch)
+{
+	(void)st;
+	switch (ch) {
+	case '\n':
+	case '\r':
+	case KEY_ENTER:
+		console_setup_push(c, NULL);
+		return true;
+	case 's':
+	case 'S':
+		console_sessions_push(c);
+		return true;
+	case 'q':
+	case 'Q':
+		console_quit(c);
+		return true;
+	default:
+		return false;
+	}
+}
+
+void console_welcome_push(struct console *c)
+{
+	struct console_screen s = {
+		.title = "before you begin",
+		.keys = welcome_keys,
+		.nkeys = sizeof welcome_keys / sizeof welcome_keys[0],
+		.draw = welcome_draw,
+		.key = welcome_key,
+	};
+	console_push(c, &s);
+}
