@@ -53,6 +53,8 @@ struct analysis_opts {
 	double conf;                  /* 0.95 */
 	bool fit;                     /* fit psychometric functions over levels */
 	struct fit_opts fit_opts;     /* m must match */
+	bool shape_auto;              /* Weibull where proportion correct rises with the level,
+					 logistic where it falls (fit_opts.shape is then ignored) */
 	double ceiling, floor_margin; /* item flags: pc ≥ ceiling; pc ≤ 1/m + floor_margin */
 };
 

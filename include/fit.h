@@ -70,6 +70,10 @@ struct fit_result {
  * malloc'd array (caller frees) and its length in *NPTS; NULL when N = 0. */
 struct fit_point *fit_group(const double *levels, const int *correct, size_t n, size_t *npts);
 
+/* +1 when proportion correct rises with the level over the points, −1 when it falls (the sign of
+ * the trial-weighted covariance of level and proportion correct; +1 when undecided). */
+int fit_direction(const struct fit_point *pts, size_t npts);
+
 /* Fits the model to NPTS points (any order, levels may repeat) and, when O->nboot > 0 and the fit
  * succeeded, runs the parametric bootstrap. Always fills R; returns 0 when R->status is FIT_OK,
  * else -1 with R->reason set. */

@@ -158,6 +158,26 @@ static void analysis_testTiming(void **state)
 	analysis_destroy(a);
 }
 
+/* Without a chosen shape, rising data get the Weibull and falling data the logistic. */
+static void analysis_testShapeAuto(void **state)
+{
+	(void)state;
+	struct analysis_row r[sizeof rows / sizeof rows[0]];
+	memcpy(r, rows, sizeof rows);
+	struct analysis_opts o;
+	analysis_opts_default(&o, 3);
+	o.fit_opts.nboot = 0;
+	o.shape_auto = true;
+	struct analysis *a = analysis_run(r, 11, NULL, 0, &o);
+	assert_int_equal(a->series[0].fit.f.shape, PSYFN_WEIBULL);   /* 0.6 then 0.8 */
+	analysis_destroy(a);
+	for (size_t i = 0; i < 11; i++)
+		r[i].level = r[i].level == 1.0 ? 2.0 : 1.0;   /* now 0.8 then 0.6: falling */
+	a = analysis_run(r, 11, NULL, 0, &o);
+	assert_int_equal(a->series[0].fit.f.shape, PSYFN_LOGISTIC);
+	analysis_destroy(a);
+}
+
 static void analysis_testPooledAndEdges(void **state)
 {
 	(void)state;
@@ -197,6 +217,7 @@ int main(void)
 		cmocka_unit_test(analysis_testConfusions),
 		cmocka_unit_test(analysis_testItemsAndCategories),
 		cmocka_unit_test(analysis_testTiming),
+		cmocka_unit_test(analysis_testShapeAuto),
 		cmocka_unit_test(analysis_testPooledAndEdges),
 	};
 	return cmocka_run_group_tests(tests, NULL, NULL);

@@ -177,6 +177,7 @@ static int setup_analysis(struct ropts *o, int m)
 	analysis_opts_default(&o->a, m);
 	o->a.ci = o->ci;
 	o->a.fit = !o->nofit;
+	o->a.shape_auto = o->shape == NULL;
 	struct fit_opts *f = &o->a.fit_opts;
 	if (o->shape)
 		psyfn_shape_parse(o->shape, &f->shape);
@@ -464,7 +465,8 @@ static void print_fits(const struct analysis *a)
 {
 	const struct fit_opts *f = &a->opts.fit_opts;
 	printf("\nPsychometric fits: %s, guess rate 1/%d, lapse %s, threshold at pc %.3g, "
-	       "%d bootstrap samples (seed %llu)\n", psyfn_shape_name(f->shape), a->opts.m,
+	       "%d bootstrap samples (seed %llu)\n", a->opts.shape_auto ? "weibull where accuracy "
+	       "rises with the level, logistic where it falls" : psyfn_shape_name(f->shape), a->opts.m,
 	       f->lapse_free ? "free in [0, 0.06]" : "fixed", f->pc_threshold, f->nboot,
 	       (unsigned long long)f->seed);
 	for (size_t i = 0; i < a->nseries; i++) {
@@ -478,8 +480,9 @@ static void print_fits(const struct analysis *a)
 			printf("no fit: %s\n", r->reason);
 			continue;
 		}
-		printf("alpha %.4g, beta %.4g, lambda %.3g, deviance %.3g on %d df\n", r->f.alpha,
-		       r->f.beta, r->f.lambda, r->deviance, r->dof);
+		printf("%s alpha %.4g, beta %.4g, lambda %.3g, deviance %.3g on %d df\n",
+		       psyfn_shape_name(r->f.shape), r->f.alpha, r->f.beta, r->f.lambda, r->deviance,
+		       r->dof);
 		if (r->threshold_ok) {
 			printf("      threshold %.4g", r->threshold);
 			if (r->has_ci && isfinite(r->threshold_ci[0]))

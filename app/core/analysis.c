@@ -152,7 +152,11 @@ static void conditions(struct analysis *a, const struct analysis_row **v, size_t
 				se->pts[se->npts - 1].n++;
 				se->pts[se->npts - 1].k += r->correct == 1;
 			}
-			fit_run(se->pts, se->npts, &o->fit_opts, &se->fit);
+			struct fit_opts fo = o->fit_opts;
+			if (o->shape_auto)
+				fo.shape = fit_direction(se->pts, se->npts) < 0 ? PSYFN_LOGISTIC
+										 : PSYFN_WEIBULL;
+			fit_run(se->pts, se->npts, &fo, &se->fit);
 		}
 		s = e;
 	}

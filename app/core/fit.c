@@ -237,6 +237,38 @@ static int cmp_point(const void *a, const void *b)
 	return (x > y) - (x < y);
 }
 
+/* +1 when proportion correct rises with the level, −1 when it falls: the sign of the
+ * trial-weighted covariance of level and proportion correct (ties and single levels: +1). */
+static double direction(const double *x, const unsigned long *nt, const unsigned long *k, size_t n)
+{
+	double sn = 0, sx = 0, sp = 0, cov = 0;
+	for (size_t i = 0; i < n; i++) {
+		sn += (double)nt[i];
+		sx += (double)nt[i] * x[i];
+		sp += (double)k[i];
+	}
+	for (size_t i = 0; i < n && sn > 0; i++)
+		if (nt[i])
+			cov += (double)nt[i] * (x[i] - sx / sn) * ((double)k[i] / (double)nt[i] - sp / sn);
+	return cov < 0 ? -1 : 1;
+}
+
+int fit_direction(const struct fit_point *pts, size_t npts)
+{
+	double *x = xmalloc((npts + 1) * sizeof *x);
+	unsigned long *nt = xmalloc((npts + 1) * sizeof *nt), *k = xmalloc((npts + 1) * sizeof *k);
+	for (size_t i = 0; i < npts; i++) {
+		x[i] = pts[i].level;
+		nt[i] = pts[i].n;
+		k[i] = pts[i].k;
+	}
+	double d = direction(x, nt, k, npts);
+	free(x);
+	free(nt);
+	free(k);
+	return d < 0 ? -1 : 1;
+}
+
 /* Builds the model from the points: sorted, merged, empty points dropped. */
 static void model_init(struct model *md, const struct fit_point *pts, size_t npts,
 		       const struct fit_opts *o)
@@ -272,21 +304,8 @@ static void model_init(struct model *md, const struct fit_point *pts, size_t npt
 	md->lapse_max = o->lapse_max;
 	md->npar = o->lapse_free ? 3 : 2;
 	md->sign = o->direction < 0 ? -1 : 1;
-	if (o->direction == 0 && md->n >= 2) {
-		/* Automatic: the sign of the trial-weighted covariance of level and proportion
-		 * correct. */
-		double sn = 0, sx = 0, sp = 0, cov = 0;
-		for (size_t i = 0; i < md->n; i++) {
-			sn += (double)md->nt[i];
-			sx += (double)md->nt[i] * md->x[i];
-			sp += (double)md->k[i];
-		}
-		for (size_t i = 0; i < md->n; i++)
-			cov += (double)md->nt[i] * (md->x[i] - sx / sn) *
-			       ((double)md->k[i] / (double)md->nt[i] - sp / sn);
-		if (cov < 0)
-			md->sign = -1;
-	}
+	if (o->direction == 0)
+		md->sign = direction(md->x, md->nt, md->k, md->n);
 }
 
 static void model_clear(struct model *md)
