@@ -33,10 +33,11 @@ int cmd_demo(int argc, char **argv);
 
 /* Shared by `run` and `demo` (app/cmd/cmd_run.c): parse the session options from ARGV[FIRST..]
  * into O (*RIG_ARG gets --rig), returning 0 or -1 after a message; run one session and print its
- * block summaries, returning the exit code. */
+ * block summaries, returning the exit code; ID_OUT (may be NULL) gets the session's ID, "" when
+ * none began. */
 struct run_options;
 int cmd_run_options(int argc, char **argv, int first, struct run_options *o, char **rig_arg);
-int cmd_run_session(const struct run_options *o);
+int cmd_run_session(const struct run_options *o, char id_out[37]);
 
 /* The table row for NAME, or NULL. */
 const struct cmd *cmd_find(const char *name);

@@ -5,12 +5,64 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include <math.h>
+
 #include "cmd.h"
 #include "run.h"
+#include "store.h"
 
 /* Noise budgets 0, 8, 16, 32: a mirrored Weibull (accuracy falls as the budget grows) near
  * ceiling at 8, about 60% at 16, near chance at 32. Invented for the demo. */
 #define DEMO_MODEL "model:shape=weibull,threshold=20,slope=-3,lapse=0.02,rt=650,seed=1"
+
+/* Accuracy per level of the session's main-block trials, read back from the database. */
+static void print_levels(const char *db, const char *id)
+{
+	struct store *st;
+	char *err = NULL;
+	if (store_open(db, &st, &err)) {
+		free(err);
+		return;
+	}
+	struct store_trial *t = NULL;
+	size_t n = 0;
+	if (store_trials_load(st, id, &t, &n, &err) == 0) {
+		double levels[16];
+		size_t nl = 0, tot[16] = {0}, ok[16] = {0};
+		for (size_t i = 0; i < n; i++) {
+			if (t[i].practice || !t[i].has_level)
+				continue;
+			size_t k = 0;
+			while (k < nl && levels[k] != t[i].level)
+				k++;
+			if (k == nl) {
+				if (nl == 16)
+					continue;
+				levels[nl++] = t[i].level;
+			}
+			tot[k]++;
+			ok[k] += t[i].correct == 1;
+		}
+		if (nl)
+			printf("\nnoise budget   trials   correct   proportion\n");
+		for (size_t a = 0; a < nl; a++) {   /* ascending level */
+			size_t m = a;
+			for (size_t b = a + 1; b < nl; b++)
+				if (levels[b] < levels[m])
+					m = b;
+			double lv = levels[m]; levels[m] = levels[a]; levels[a] = lv;
+			size_t x = tot[m]; tot[m] = tot[a]; tot[a] = x;
+			x = ok[m]; ok[m] = ok[a]; ok[a] = x;
+			printf("%12g %8zu %9zu %12.3f\n", levels[a], tot[a], ok[a],
+			       (double)ok[a] / (double)tot[a]);
+		}
+		store_trials_free(t, n);
+	}
+	free(err);
+	store_close(st);
+	printf("\nmore: tachist report --db %s --session %.8s    tachist export --db %s --format csv "
+	       "--session %.8s --out demo.csv\n", db, id, db, id);
+}
 
 int cmd_demo(int argc, char **argv)
 {
@@ -42,7 +94,10 @@ int cmd_demo(int argc, char **argv)
 		printf("demo: answer with the keys s d f j k l (ring bar cross chevron wedge lattice); "
 		       "Escape pauses\n");
 	fflush(stdout);
-	int code = cmd_run_session(&o);
+	char id[37];
+	int code = cmd_run_session(&o, id);
+	if (id[0])
+		print_levels(o.db_path, id);
 	free(proto);
 	free(rig);
 	return code;

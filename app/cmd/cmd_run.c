@@ -42,8 +42,10 @@ static enum run_cmd progress_line(const struct run_snapshot *s, void *ctx)
 	return RUN_CMD_CONTINUE;
 }
 
-int cmd_run_session(const struct run_options *o)
+int cmd_run_session(const struct run_options *o, char id_out[37])
 {
+	if (id_out)
+		id_out[0] = '\0';
 	struct diag_list d;
 	diag_init(&d);
 	char *err = NULL;
@@ -75,6 +77,8 @@ int cmd_run_session(const struct run_options *o)
 	err = NULL;
 	char id[37];
 	snprintf(id, sizeof id, "%s", run_session_id(s));
+	if (id_out)
+		memcpy(id_out, id, sizeof id);
 	if (run_close(s, &err)) {
 		fprintf(stderr, "tachist: %s\n", err);
 		code = EXIT_PROBLEMS;
@@ -167,7 +171,7 @@ int cmd_run(int argc, char **argv)
 		}
 	}
 	o.rig_path = rig;
-	int code = cmd_run_session(&o);
+	int code = cmd_run_session(&o, NULL);
 	free(rig);
 	return code;
 }

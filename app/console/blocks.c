@@ -253,6 +253,7 @@ static void answer_close(struct console *c, void *ud, bool yes)
 static bool blocks_key(struct console *c, void *sv, int ch)
 {
 	struct blocks *b = sv;
+	blocks_tick(c, sv);   /* a block may have ended since the last tick: act on the new state */
 	struct console_pres *p = console_presenter(c);
 	const struct console_pres_state *st = p ? console_pres_state(p) : NULL;
 	bool idle = st && st->phase == CONSOLE_PRES_IDLE;

@@ -63,7 +63,7 @@ static void live_draw(struct console *c, void *sv)
 	}
 	const struct console_snap *s = &st->snap;
 	console_putf(c, y, 2, w, CONSOLE_HEAD, "Block %d of %zu: %s%s", s->block + 1, st->nblocks,
-		     s->block_name, s->practice ? " (practice)" : "");
+		     s->block_name, s->practice ? "  (a practice block)" : "");
 	const char *word = l->end_sent ? "ending" : state_word(s->state);
 	console_put(c, y, COLS - 2 - (int)strlen(word), (int)strlen(word),
 		    s->state == RUN_STATE_PAUSED || l->end_sent ? CONSOLE_WARN : CONSOLE_OK, word);

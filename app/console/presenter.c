@@ -281,8 +281,9 @@ static void child_main(int cmd_fd, int ev_fd, const struct run_options *opt)
 			err = NULL;
 			enum run_block_result r = run_block(s, (size_t)k.arg, child_progress, &x, &sum,
 							    &err);
-			send_summary(ev_fd, &sum, r, err);
+			/* Blocks first: the console acts on the summary with the counts current. */
 			send_blocks(ev_fd, s);
+			send_summary(ev_fd, &sum, r, err);
 			if (r == RUN_BLOCK_ENDED || r == RUN_BLOCK_INTERRUPTED || r == RUN_BLOCK_FAILED)
 				break;
 		} else if (k.type == CMD_SKIP && k.arg >= 0 &&

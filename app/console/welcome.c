@@ -5,7 +5,12 @@
 
 #include <curses.h>
 #include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
 #include <sys/stat.h>
+
+#include "diag.h"
+#include "store.h"
 
 static const struct console_key welcome_keys[] = {
 	{"Enter", "set up a session"},
@@ -29,9 +34,52 @@ static const struct {
 	 "keep the key that links IDs to people away from the data."},
 };
 
+struct welcome {
+	char db_note[160];          /* what the database holds */
+	enum console_role db_role;
+	int ticks;
+};
+
+/* Counts the stored sessions (an existing file only: the first screen never creates one). */
+static void read_db(struct console *c, struct welcome *w)
+{
+	const struct console_options *o = console_options(c);
+	struct stat sb;
+	w->db_role = CONSOLE_DIM;
+	if (stat(o->db_path, &sb) != 0) {
+		snprintf(w->db_note, sizeof w->db_note,
+			 "(a new file; made when the first session starts)");
+		return;
+	}
+	struct store *db = NULL;
+	struct store_session *v = NULL;
+	size_t n = 0;
+	char *err = NULL;
+	if (store_open(o->db_path, &db, &err) != 0 ||
+	    store_sessions_list(db, NULL, &v, &n, &err) != 0) {
+		snprintf(w->db_note, sizeof w->db_note, "cannot be read: %s",
+			 err ? err : "unknown error");
+		w->db_role = CONSOLE_BAD;
+	} else {
+		size_t open = 0;
+		for (size_t i = 0; i < n; i++)
+			open += v[i].status == STORE_INTERRUPTED || v[i].status == STORE_ABORTED;
+		snprintf(w->db_note, sizeof w->db_note, "%zu session%s stored", n, n == 1 ? "" : "s");
+		if (open) {
+			size_t len = strlen(w->db_note);
+			snprintf(w->db_note + len, sizeof w->db_note - len,
+				 "; %zu can be resumed (s)", open);
+			w->db_role = CONSOLE_WARN;
+		}
+	}
+	store_sessions_free(v, n);
+	store_close(db);
+	free(err);
+}
+
 static void welcome_draw(struct console *c, void *st)
 {
-	(void)st;
+	struct welcome *wl = st;
 	const struct console_options *o = console_options(c);
 	int y = console_body_top(), w = COLS - 4;
 	console_put(c, y++, 2, w, CONSOLE_HEAD, "Before anyone sits down");
@@ -42,12 +90,9 @@ static void welcome_draw(struct console *c, void *st)
 		y += console_wrap(c, y, 4, w - 2, 3, CONSOLE_PLAIN, cautions[i].text);
 	}
 	y++;
-	struct stat sb;
-	bool db_exists = stat(o->db_path, &sb) == 0;
 	console_put(c, y, 2, 10, CONSOLE_DIM, "Database");
 	int x = 12 + console_put(c, y, 12, w - 10, CONSOLE_PLAIN, o->db_path);
-	console_put(c, y++, x + 2, COLS - x - 3, CONSOLE_DIM,
-		    db_exists ? "" : "(a new file; made when the first session starts)");
+	console_put(c, y++, x + 2, COLS - x - 3, wl->db_role, wl->db_note);
 	console_put(c, y, 2, 10, CONSOLE_DIM, "Rig");
 	x = 12 + console_put(c, y, 12, w - 10, CONSOLE_PLAIN,
 			     o->rig_path ? o->rig_path : "(none found)");
@@ -56,6 +101,16 @@ static void welcome_draw(struct console *c, void *st)
 			    "demo rig: describe your own display before real sessions");
 	y += 2;
 	console_put(c, y, 2, w, CONSOLE_OK, "Press Enter when you have read this to set up a session.");
+}
+
+/* Reads the database again every few seconds (sessions end while the screen is up). */
+static bool welcome_tick(struct console *c, void *st)
+{
+	struct welcome *w = st;
+	if (++w->ticks % 30)
+		return false;
+	read_db(c, w);
+	return true;
 }
 
 static bool welcome_key(struct console *c, void *st, int ch)
@@ -82,12 +137,17 @@ static bool welcome_key(struct console *c, void *st, int ch)
 
 void console_welcome_push(struct console *c)
 {
+	struct welcome *w = xcalloc(1, sizeof *w);
+	read_db(c, w);
 	struct console_screen s = {
 		.title = "before you begin",
 		.keys = welcome_keys,
 		.nkeys = sizeof welcome_keys / sizeof welcome_keys[0],
 		.draw = welcome_draw,
 		.key = welcome_key,
+		.tick = welcome_tick,
+		.destroy = free,
+		.st = w,
 	};
 	console_push(c, &s);
 }

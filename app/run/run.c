@@ -326,6 +326,8 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 	return 0;
 }
 
+static int adaptive_mark_finished(struct run_session *s, char **err);
+
 /* Marks planned trials already stored for a resumed session. */
 static int mark_stored(struct run_session *s, char **err)
 {
@@ -412,7 +414,7 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 		goto fail;
 	const char *mode = o->headless ? "simulated" : "vsync";
 	if (o->resume_id) {
-		if (mark_stored(s, err))
+		if (mark_stored(s, err) || adaptive_mark_finished(s, err))
 			goto fail;
 		if (strcmp(s->ss.timing_mode ? s->ss.timing_mode : "", mode))
 			diag_add(d, DIAG_WARNING, NULL, 0, "session %.8s began with timing mode %s and "
@@ -789,6 +791,32 @@ static struct adapt_block *adaptive_state(struct run_session *s, size_t bi, bool
 	s->adapt_run[bi] = s->runs[bi];
 	s->adapt_pending = false;
 	return ab;
+}
+
+/* Resume: in adaptive blocks begun before, planned trials of staircases that have already
+ * finished will be skipped when their turn comes; mark them done now so a block whose staircases
+ * all finished is not entered again. Returns 0 or -1 with *ERR. */
+static int adaptive_mark_finished(struct run_session *s, char **err)
+{
+	for (size_t bi = 0; bi < s->plan.nblocks; bi++) {
+		const struct plan_block *pb = &s->plan.blocks[bi];
+		bool begun = false;
+		for (size_t k = 0; k < pb->ntrials && !begun; k++)
+			begun = s->stored[pb->first + k] &&
+				s->plan.trials[pb->first + k].staircase >= 0;
+		if (!begun)
+			continue;
+		struct adapt_block *ab = adaptive_state(s, bi, false, err);
+		if (!ab)
+			return -1;
+		for (size_t k = 0; k < pb->ntrials; k++) {
+			int st = s->plan.trials[pb->first + k].staircase;
+			if (st >= 0 && (size_t)st < adapt_block_nstairs(ab) &&
+			    adapt_stair_done(adapt_block_stair(ab, (size_t)st)))
+				s->stored[pb->first + k] = true;
+		}
+	}
+	return 0;
 }
 
 /* ADAPTIVE HOOK 1 — before a trial whose plan_trial.staircase >= 0: the adaptive rule picks the

@@ -139,6 +139,7 @@ tm_keys q
 expect_screen "back to the set-up form" "New session"
 tm_keys q
 expect_screen "back to the first screen" "Before anyone sits down"
+expect_screen "the first screen points to the sessions to resume" "can be resumed (s)"
 tm_keys s
 expect_screen "sessions list shows the interrupted session" "interrupted"
 tm_keys u

@@ -1,7 +1,8 @@
 # e2e console_session — a whole session driven through the console in tmux, headless with the model
 # observer: set up, run both blocks, read the results (accuracy, curve, confusions, timing), export
 # CSV, close, find it in the sessions list, quit. The database must hold every trial, and the
-# session must equal, trial for trial, one run by `tachist run` with the same seed: the console
+# session must equal, trial for trial, one run by `tachist run` with the same seed (before the
+# warm-up block is run again): the console
 # adds no dropped frames and changes nothing in what the observer is shown.
 . tests/e2e/lib.sh
 . tests/e2e/console.inc
@@ -72,10 +73,14 @@ expect_screen "block 1 runs and reports" 'Block "warmup" done: 6 trials'
 tm_keys Enter
 expect_screen "block 2 runs and reports" 'Block "main" done: 24 trials'
 expect_screen "both blocks are done" "practice   done"
+tm_keys Up a
+expect_screen "running a block again asks first" 'Run block 1 ("warmup") again?'
+tm_keys y
+expect_screen "the block runs again" "run 2 times"
 
 tm_keys r
 expect_screen "results: accuracy view" "1 accuracy"
-expect_screen "results: practice trials are left out" "(6 practice trials left out)"
+expect_screen "results: practice trials are left out" "(12 practice trials left out)"
 expect_screen "results: the interval scale" "95% Wilson"
 for lv in 0 8 16 32; do
   expect_screen "results: a row for level $lv" "main           $lv "
@@ -101,26 +106,27 @@ tm_keys C-u Enter
 expect_screen "export: an empty path" "path needs a value"
 tm_type "$WORK/out.csv"
 tm_keys Enter
-expect_screen "export: written" "Wrote 30 trials of 1 session to $WORK/out.csv"
+expect_screen "export: written" "Wrote 36 trials of 1 session to $WORK/out.csv"
 tm_keys w
 expect_screen "export: an existing file is not replaced without asking" "exists. Replace what is there?"
 tm_keys n
 expect_screen "export: no means nothing written" "nothing written"
 lines=$(wc -l < "$WORK/out.csv" | tr -d ' ')
-expect_eq "the CSV has a header and 30 rows" 31 "$lines"
+expect_eq "the CSV has a header and 36 rows" 37 "$lines"
 check "the CSV header is the export's" grep -q '^session_id,subject,block,block_trial,trial,image' "$WORK/out.csv"
 
 tm_keys q q
-expect_screen "back on the blocks screen" 'Block "main" done'
+expect_screen "back on the blocks screen" 'Block "warmup" done'
 tm_keys c
 expect_screen "closing asks first" "Close this session?"
 tm_keys y
 expect_screen "the session closes" "Session closed."
 tm_keys q q
 expect_screen "back on the first screen" "Before anyone sits down"
+expect_screen "the first screen counts the stored sessions" "1 session stored"
 tm_keys s
 expect_screen "sessions list" "1 session"
-expect_screen "sessions list: subject, status and trials" "complete         30"
+expect_screen "sessions list: subject, status and trials" "complete         36"
 tm_keys Enter
 expect_screen "results from the sessions list" "1 accuracy"
 tm_keys q q q
@@ -128,7 +134,7 @@ expect_screen "quit" "console-exit=0"
 tm_stty_same "terminal modes restored"
 
 n=$(sqlite3 "$DB" "select count(*) from trials")
-expect_eq "the database holds every trial" 30 "$n"
+expect_eq "the database holds every trial, the repeated block's too" 36 "$n"
 st=$(sqlite3 "$DB" "select status from sessions")
 expect_eq "the session is complete" complete "$st"
 
@@ -136,10 +142,10 @@ expect_eq "the session is complete" complete "$st"
 expect_exit "tachist run with the same seed" 0 "$TACHIST" run "$WORK/quick.ini" --subject S01 \
   --seed 4242 --headless --observer "$SPEC" --db "$WORK/cli.db"
 q="select block, block_trial, trial, image, response_key, correct, rt_ms, frames_planned,
-   frames_actual, dropped_frames, timing_ok from trials order by trial"
+   frames_actual, dropped_frames, timing_ok from trials where trial < 30 order by trial"
 sqlite3 "$DB" "$q" > "$WORK/console.rows"
 sqlite3 "$WORK/cli.db" "$q" > "$WORK/cli.rows"
-check "console and command line give the same trials" cmp -s "$WORK/console.rows" "$WORK/cli.rows"
-d1=$(sqlite3 "$DB" "select sum(dropped_frames) || '/' || sum(1 - timing_ok) from trials")
+check "console and command line give the same 30 trials" cmp -s "$WORK/console.rows" "$WORK/cli.rows"
+d1=$(sqlite3 "$DB" "select sum(dropped_frames) || '/' || sum(1 - timing_ok) from trials where trial < 30")
 d2=$(sqlite3 "$WORK/cli.db" "select sum(dropped_frames) || '/' || sum(1 - timing_ok) from trials")
 expect_eq "no dropped frames or flagged trials added by the console" "$d2" "$d1"

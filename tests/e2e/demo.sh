@@ -13,3 +13,5 @@ expect_eq "156 trials (12 practice + 144 main), all with exact timing" "156|156"
 acc0=$(sqlite3 "$WORK/demo.db" 'select avg(correct) from trials where level=0')
 acc32=$(sqlite3 "$WORK/demo.db" 'select avg(correct) from trials where level=32')
 check "accuracy at budget 0 ($acc0) above budget 32 ($acc32)" awk -v a="$acc0" -v b="$acc32" 'BEGIN { exit !(a > b + 0.3) }'
+check "demo prints accuracy per noise budget" grep -q '^ *32 *36 ' "$WORK/last.out"
+check "demo says where to look next" grep -q '^more: tachist report --db' "$WORK/last.out"
