@@ -20,7 +20,7 @@
 #define H 440.0
 #define ML 72.0
 #define MR 24.0
-#define MT 44.0
+#define MT 48.0
 #define MB 64.0
 #define C_DATA "#0072B2"
 #define C_FIT "#D55E00"
@@ -131,8 +131,8 @@ void svg_psychometric(FILE *out, const struct analysis_series *se, int m, double
 		lo = 0, hi = 1;
 	double pad = (hi - lo) * 0.05;
 	struct frame f;
-	/* Levels that cannot be negative (budgets, contrasts) keep the axis at 0 or above. */
-	default_frame(&f, lo >= 0 && lo - pad < 0 ? 0 : lo - pad, hi + pad, 0, 1);
+	/* Padded on both sides so a point at the lowest level stays clear of the axis. */
+	default_frame(&f, lo - pad, hi + pad, 0, 1);
 	axes(out, &f, "level (units of the stimulus list)", "proportion correct", true);
 	/* Chance line. */
 	fprintf(out, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"" C_GUIDE "\" "
@@ -178,8 +178,10 @@ void svg_psychometric(FILE *out, const struct analysis_series *se, int m, double
 			X, fy(&f, lw), X, fy(&f, up), X, fy(&f, pc), 3 + fmin(4.0, sqrt((double)p->n) / 3));
 	}
 	fprintf(out, "<text x=\"%.1f\" y=\"%.1f\" font-size=\"11\" fill=\"#555555\">points: proportion "
-		"correct with %.0f%% Wilson intervals; line: %s fit</text>\n</svg>\n",
-		f.px0 + 8, f.py1 + 2, conf * 100, psyfn_shape_name(r->f.shape));
+		"correct with %.0f%% Wilson intervals%s%s%s</text>\n</svg>\n", f.px0 + 8, f.py1 - 6,
+		conf * 100, r->status == FIT_OK ? "; line: " : "",
+		r->status == FIT_OK ? psyfn_shape_name(r->f.shape) : "",
+		r->status == FIT_OK ? " fit" : "");
 }
 
 void svg_confusion(FILE *out, const struct analysis *a, size_t ic, const char *title)
