@@ -51,6 +51,9 @@ void cmd_print_diags(const struct diag_list *d, FILE *out);
  * ~/.config/...), else the demo rig in assets-demo/ with a warning on stderr. Returns a malloc'd
  * path or NULL when none exists. */
 char *cmd_rig_path(const char *explicit_path);
+/* As cmd_rig_path but prints nothing: *IS_DEMO tells whether the demo rig was the fallback (the
+ * console shows that on its first screen, since a line printed before curses starts is lost). */
+char *cmd_rig_path_find(const char *explicit_path, bool *is_demo);
 /* Resolves a path shipped with the program (for example "protocols/demo.ini"): the current folder
  * first, then beside the executable's source tree. Returns a malloc'd path or NULL. */
 char *cmd_asset_path(const char *rel);

@@ -25,18 +25,18 @@ int cmd_console(int argc, char **argv)
 		fprintf(stderr, "tachist console: --db needs a file name\n");
 		return EXIT_USAGE;
 	}
-	char *rig_path = cmd_rig_path(rig);
-	char *demo_rig = cmd_asset_path("assets-demo/rig.ini");
+	/* The demo-rig fallback is shown on the console's first screen, not printed here. */
+	bool demo = false;
+	char *rig_path = cmd_rig_path_find(rig, &demo);
 	char *protocols = cmd_asset_path("protocols");
 	struct console_options o = {
 		.db_path = db,
 		.rig_path = rig_path,
-		.rig_is_fallback = !rig && rig_path && demo_rig && !strcmp(rig_path, demo_rig),
+		.rig_is_fallback = demo,
 		.protocols_dir = protocols,
 	};
 	int rc = console_main(&o);
 	free(rig_path);
-	free(demo_rig);
 	free(protocols);
 	return rc == 0 ? EXIT_OK : EXIT_PROBLEMS;
 }

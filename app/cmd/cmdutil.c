@@ -55,6 +55,17 @@ char *cmd_asset_path(const char *rel)
 
 char *cmd_rig_path(const char *explicit_path)
 {
+	bool demo = false;
+	char *p = cmd_rig_path_find(explicit_path, &demo);
+	if (demo)
+		fprintf(stderr, "tachist: warning: no rig profile in $XDG_CONFIG_HOME/tachist/rig.ini; "
+			"using the demo rig %s (describe your own display before real sessions)\n", p);
+	return p;
+}
+
+char *cmd_rig_path_find(const char *explicit_path, bool *is_demo)
+{
+	*is_demo = false;
 	if (explicit_path)
 		return xstrdup(explicit_path);
 	const char *xdg = getenv("XDG_CONFIG_HOME");
@@ -68,9 +79,7 @@ char *cmd_rig_path(const char *explicit_path)
 		return p;
 	free(p);
 	p = cmd_asset_path("assets-demo/rig.ini");
-	if (p)
-		fprintf(stderr, "tachist: warning: no rig profile in $XDG_CONFIG_HOME/tachist/rig.ini; "
-			"using the demo rig %s (describe your own display before real sessions)\n", p);
+	*is_demo = p != NULL;
 	return p;
 }
 
