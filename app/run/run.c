@@ -75,6 +75,13 @@ struct run_session {
 	struct SDL_Texture *mask;
 
 	bool *stored;            /* per planned trial */
+	/* Resume: timing-fault repeats the interrupted run owed (a stored fault in a block that
+	 * repeats faults, with no stored repeat); shown at their block's end, dropped once stored. */
+	struct pending_repeat {
+		size_t block, plan_index;
+		int repeat_of;
+	} *pend;
+	size_t npend;
 	int *next_bt;            /* per block: next free block_trial number for repeats */
 	int *runs;               /* per block */
 	bool *skipped;           /* per block: skipped by the experimenter or the observer */
@@ -328,7 +335,13 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 
 static int adaptive_mark_finished(struct run_session *s, char **err);
 
-/* Marks planned trials already stored for a resumed session. */
+static int cmp_int(const void *a, const void *b)
+{
+	int x = *(const int *)a, y = *(const int *)b;
+	return (x > y) - (x < y);
+}
+
+/* Marks planned trials already stored for a resumed session, and finds the repeats it owes. */
 static int mark_stored(struct run_session *s, char **err)
 {
 	struct store_trial *rows = NULL;
@@ -355,8 +368,52 @@ static int mark_stored(struct run_session *s, char **err)
 			responder_begin(s->resp, &rt);
 		}
 	}
+	/* Faults still owed a repeat, in trial order (the order an uninterrupted run queues them). */
+	int *done = xmalloc((n + 1) * sizeof *done);
+	size_t ndone = 0;
+	for (size_t i = 0; i < n; i++)
+		if (rows[i].repeat_of >= 0)
+			done[ndone++] = rows[i].repeat_of;
+	qsort(done, ndone, sizeof *done, cmp_int);
+	s->pend = xmalloc((n + 1) * sizeof *s->pend);
+	for (size_t i = 0; i < n; i++) {
+		const struct store_trial *t = &rows[i];
+		if (t->repeat_of >= 0 || t->timing_ok || t->block < 0 ||
+		    (size_t)t->block >= s->plan.nblocks)
+			continue;
+		const struct plan_block *b = &s->plan.blocks[t->block];
+		const struct protocol_block *prb = pblock(s, (size_t)t->block);
+		if (!prb->repeat_faults || prb->adaptive || t->block_trial < 0 ||
+		    (size_t)t->block_trial >= b->ntrials ||
+		    bsearch(&t->trial, done, ndone, sizeof *done, cmp_int))
+			continue;
+		s->pend[s->npend++] = (struct pending_repeat){(size_t)t->block,
+							       b->first + (size_t)t->block_trial,
+							       t->trial};
+	}
+	free(done);
 	store_trials_free(rows, n);
 	return 0;
+}
+
+/* Repeats still owed in block B. */
+static size_t pending_in(const struct run_session *s, size_t b)
+{
+	size_t k = 0;
+	for (size_t i = 0; i < s->npend; i++)
+		k += s->pend[i].block == b;
+	return k;
+}
+
+/* Drops the owed repeat of session trial TRIAL (it has been stored). */
+static void pending_done(struct run_session *s, int trial)
+{
+	for (size_t i = 0; i < s->npend; i++)
+		if (s->pend[i].repeat_of == trial) {
+			memmove(&s->pend[i], &s->pend[i + 1], (s->npend - i - 1) * sizeof *s->pend);
+			s->npend--;
+			return;
+		}
 }
 
 struct run_session *run_open(const struct run_options *o, struct diag_list *d, char **err)
@@ -565,6 +622,8 @@ size_t run_next_block(const struct run_session *s)
 		const struct plan_block *pb = &s->plan.blocks[b];
 		if (s->skipped[b])
 			continue;
+		if (pending_in(s, b))
+			return b;
 		for (size_t k = 0; k < pb->ntrials; k++)
 			if (!s->stored[pb->first + k])
 				return b;
@@ -953,13 +1012,22 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 	br.rts = xmalloc((pb->ntrials * 2 + 16) * sizeof *br.rts);
 	size_t capq = pb->ntrials * 2 + 16, nq = 0;
 	struct queued *q = xmalloc(capq * sizeof *q);
-	bool repeat_run = true;
+	size_t owed = pending_in(s, bi);
+	bool repeat_run = owed == 0;
 	for (size_t k = 0; k < pb->ntrials; k++)
 		if (!s->stored[pb->first + k])
 			repeat_run = false;
 	for (size_t k = 0; k < pb->ntrials; k++)
 		if (repeat_run || !s->stored[pb->first + k])
 			q[nq++] = (struct queued){pb->first + k, -1, 0};
+	/* A resumed block first finishes its planned trials, then shows the repeats it owes. */
+	if (nq + owed > capq) {
+		capq = nq + owed + 16;
+		q = xrealloc(q, capq * sizeof *q);
+	}
+	for (size_t i = 0; i < s->npend && !repeat_run; i++)
+		if (s->pend[i].block == bi)
+			q[nq++] = (struct queued){s->pend[i].plan_index, s->pend[i].repeat_of, 0};
 	br.total = nq;
 	s->runs[bi]++;
 	enum run_block_result result = RUN_BLOCK_DONE;
@@ -1079,6 +1147,8 @@ enum run_block_result run_block(struct run_session *s, size_t bi, run_progress_f
 			s->next_bt[bi] = rec.block_trial + 1;
 		if (cur->repeat_of < 0 && !repeat_run)
 			s->stored[cur->plan_index] = true;
+		if (cur->repeat_of >= 0)
+			pending_done(s, cur->repeat_of);
 		if (rec.staircase >= 0)
 			run_adaptive_update(s, &rec);
 		br.sum.trials++;
@@ -1230,6 +1300,7 @@ int run_close(struct run_session *s, char **err)
 	if (s->have_proto)
 		protocol_clear(&s->proto);
 	free(s->stored);
+	free(s->pend);
 	free(s->next_bt);
 	free(s->runs);
 	free(s->skipped);
