@@ -934,6 +934,45 @@ static void store_testMigrateV1(void **state)
 	free(db);
 }
 
+/* A version-2 file (tests/data/store_v2.sql) is migrated to 3: sessions get owner columns, empty
+ * for old rows; an old running session has no owner, so recovery marks it interrupted. */
+static void store_testMigrateV2(void **state)
+{
+	(void)state;
+	char *db = path_in("v2.db");
+	char *v = sh_line("sqlite3 '%s' < tests/data/store_v2.sql >/dev/null && sqlite3 '%s' "
+			  "'PRAGMA user_version'", db, db);
+	assert_int_equal(atoi(v), 2);
+	free(v);
+	struct store *s = NULL;
+	char *err = NULL;
+	int rc = store_open(db, &s, &err);
+	if (rc)
+		fprintf(stderr, "# %s\n", err);
+	assert_int_equal(rc, 0);
+	v = sh_line("sqlite3 '%s' 'PRAGMA user_version'", db);
+	assert_int_equal(atoi(v), STORE_SCHEMA_VERSION);
+	free(v);
+	v = sh_line("sqlite3 '%s' \"SELECT count(*) FROM sessions WHERE owner_pid IS NULL AND "
+		    "owner_host IS NULL\"", db);
+	assert_int_equal(atoi(v), 2);
+	free(v);
+	const char *old = "7a6b5c4d-3e2f-4a1b-9c8d-7e6f5a4b3c2d";
+	struct store_session ss;
+	assert_int_equal(store_session_get(s, old, &ss, &err), 0);
+	assert_int_equal(ss.status, STORE_RUNNING);
+	assert_string_equal(ss.observer, "keyboard");
+	store_session_clear(&ss);
+	int n = -1;
+	assert_int_equal(store_recover(s, &n, &err), 0);
+	assert_int_equal(n, 1);
+	assert_int_equal(store_session_get(s, old, &ss, &err), 0);
+	assert_int_equal(ss.status, STORE_INTERRUPTED);
+	store_session_clear(&ss);
+	store_close(s);
+	free(db);
+}
+
 /* describe copies what protocol, list and rig say. */
 static void store_testDescribe(void **state)
 {
@@ -972,6 +1011,7 @@ int main(void)
 		cmocka_unit_test(store_testEvents),
 		cmocka_unit_test(store_testRecoverAndList),
 		cmocka_unit_test(store_testRecoverOwner),
+		cmocka_unit_test(store_testMigrateV2),
 		cmocka_unit_test(store_testOpenExisting),
 		cmocka_unit_test(store_testIterator),
 		cmocka_unit_test(store_testDiskFull),
