@@ -39,7 +39,9 @@ struct dclock_virtual_opts {
 	int drop_frames;          /* periods lost per injected drop (default 1) */
 	double jitter_ms;         /* SD of the Gaussian offset added to each stamp (clipped to ±0.4 period) */
 	uint64_t seed;            /* for drops and jitter */
-	bool pace;                /* sleep so that virtual time keeps up with real time */
+	bool pace;                /* sleep so that virtual time keeps up with real time; after an
+				     idle gap (a flip more than one period late) pacing restarts
+				     from that flip rather than rushing to catch up */
 	int64_t origin_ns;        /* time of flip 0's predecessor; 0 = now */
 };
 

@@ -30,7 +30,7 @@ struct rig;
 
 /* Schema version this build writes (PRAGMA user_version). Older files are migrated on open;
  * newer ones are refused. */
-#define STORE_SCHEMA_VERSION 2
+#define STORE_SCHEMA_VERSION 3
 
 enum store_status { STORE_RUNNING, STORE_COMPLETE, STORE_ABORTED, STORE_INTERRUPTED };
 
@@ -65,6 +65,9 @@ struct store_session {
  * (a file that is not a database, a schema newer than this build, a read-only file that needs a
  * migration). A read-only file opens for reading; writes then fail with a clear message. */
 int store_open(const char *path, struct store **out, char **err);
+/* As store_open for a file that must exist already (readers: report, export, sessions): a
+ * missing PATH is refused with "no database at PATH" and nothing is created. */
+int store_open_existing(const char *path, struct store **out, char **err);
 void store_close(struct store *s);
 /* Path as given to store_open. */
 const char *store_path(const struct store *s);
@@ -81,7 +84,7 @@ void store_session_describe(struct store_session *ss, const struct protocol *p,
 			    const struct stimlist *l, const struct rig *r);
 
 /* Creates a session row with status running; fills S->id (a new UUID) and S->started_utc.
- * Refuses an invalid subject. */
+ * The row records this process as its owner (pid and host name). Refuses an invalid subject. */
 int store_session_begin(struct store *s, struct store_session *ss, char **err);
 /* Stores one finished trial of SESSION in one transaction (trial row and its frames). The text
  * columns (image, category, level, source, labels, response category, block name, practice) are
@@ -98,8 +101,15 @@ int store_session_refresh(struct store *s, const char *session_id, double hz, ch
 /* Sets STATUS and the end time. */
 int store_session_end(struct store *s, const char *session_id, enum store_status status,
 		      char **err);
-/* Marks every session left running (by a crash) as interrupted; *N gets how many. */
+/* Marks sessions left running by a crash as interrupted; *N gets how many. A running session
+ * is marked when its owner is on this host and gone (kill(pid, 0) fails with ESRCH) or when it
+ * records no owner (written before schema version 3). Sessions owned on other hosts are never
+ * touched: their processes cannot be checked from here. */
 int store_recover(struct store *s, int *n, char **err);
+/* Sets SESSION running again (ended time cleared) and owned by PID on HOST (NULL = this
+ * host). For a resume, and for tests that need a session owned by some other process. */
+int store_session_own(struct store *s, const char *session_id, long pid, const char *host,
+		      char **err);
 /* Reads one session by ID (a unique prefix of 8 or more characters is accepted). */
 int store_session_get(struct store *s, const char *id, struct store_session *out, char **err);
 void store_session_clear(struct store_session *ss);

@@ -4,6 +4,7 @@
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdint.h>
+#include <time.h>
 #include <cmocka.h>
 
 #include "dclock.h"
@@ -96,6 +97,29 @@ static void dclock_testPacing(void **state)
 	dclock_destroy(c);
 }
 
+/* A paced clock after an idle gap: the flips that follow are paced again, so ten flips at
+ * 100 Hz take at least 80 ms of real time (sleeping only adds time, so this lower bound cannot be
+ * met by an unpaced burst; the slack of two periods covers the re-based first flip). */
+static void dclock_testPacingAfterGap(void **state)
+{
+	(void)state;
+	struct dclock_virtual_opts o = {.hz = 100, .seed = 1, .pace = true};
+	struct dclock *c = dclock_virtual_new(NULL, &o);
+	for (int i = 0; i < 3; i++)
+		dclock_flip(c);
+	struct timespec gap = {0, 200000000};   /* 200 ms without flips, as between blocks */
+	nanosleep(&gap, NULL);
+	int64_t t0 = dclock_monotonic_ns();
+	int64_t s0 = dclock_flip(c);
+	for (int i = 0; i < 9; i++)
+		dclock_flip(c);
+	int64_t elapsed = dclock_monotonic_ns() - t0;
+	assert_true(elapsed >= 80000000);
+	/* The stamps stay on the exact grid: pacing never changes them. */
+	assert_int_equal(dclock_now(c) >= s0 + 9 * c->period_ns, 1);
+	dclock_destroy(c);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
@@ -103,6 +127,7 @@ int main(void)
 		cmocka_unit_test(dclock_testInjectedDropsLogged),
 		cmocka_unit_test(dclock_testJitterBounded),
 		cmocka_unit_test(dclock_testPacing),
+		cmocka_unit_test(dclock_testPacingAfterGap),
 	};
 	return cmocka_run_group_tests(tests, NULL, NULL);
 }

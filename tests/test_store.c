@@ -9,6 +9,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <sys/wait.h>
 #include <unistd.h>
 #include <cmocka.h>
 
@@ -472,6 +473,87 @@ static void store_testEvents(void **state)
 	store_close(s);
 }
 
+/* The pid of a child that has exited and been reaped: kill(pid, 0) then fails with ESRCH (until
+ * the pid is reused, which a test run does not wait for). */
+static long dead_pid(void)
+{
+	pid_t p = fork();
+	assert_true(p >= 0);
+	if (p == 0)
+		_exit(0);
+	int status;
+	assert_int_equal(waitpid(p, &status, 0), p);
+	return (long)p;
+}
+
+/* Recovery marks only running sessions whose owner on this host is gone (or that record no
+ * owner); a live owner's session and another host's session stay running. */
+static void store_testRecoverOwner(void **state)
+{
+	(void)state;
+	struct store_session live, dead, other;
+	struct store *s = open_with_session("own.db", "S07", &live);
+	char *err = NULL;
+	memset(&dead, 0, sizeof dead);
+	dead.subject = xstrdup("S08");
+	assert_int_equal(store_session_begin(s, &dead, &err), 0);
+	memset(&other, 0, sizeof other);
+	other.subject = xstrdup("S09");
+	assert_int_equal(store_session_begin(s, &other, &err), 0);
+	assert_int_equal(store_session_own(s, dead.id, dead_pid(), NULL, &err), 0);
+	assert_int_equal(store_session_own(s, other.id, dead_pid(), "another-host.invalid", &err),
+			 0);
+	int n = -1;
+	assert_int_equal(store_recover(s, &n, &err), 0);
+	assert_int_equal(n, 1);
+	struct store_session got;
+	assert_int_equal(store_session_get(s, live.id, &got, &err), 0);
+	assert_int_equal(got.status, STORE_RUNNING);
+	store_session_clear(&got);
+	assert_int_equal(store_session_get(s, dead.id, &got, &err), 0);
+	assert_int_equal(got.status, STORE_INTERRUPTED);
+	store_session_clear(&got);
+	assert_int_equal(store_session_get(s, other.id, &got, &err), 0);
+	assert_int_equal(got.status, STORE_RUNNING);
+	store_session_clear(&got);
+	/* Taking a session over sets it running again, owned by the caller. */
+	assert_int_equal(store_session_own(s, dead.id, (long)getpid(), NULL, &err), 0);
+	assert_int_equal(store_session_get(s, dead.id, &got, &err), 0);
+	assert_int_equal(got.status, STORE_RUNNING);
+	assert_null(got.ended_utc);
+	store_session_clear(&got);
+	assert_int_equal(store_recover(s, &n, &err), 0);
+	assert_int_equal(n, 0);
+	store_session_clear(&live);
+	store_session_clear(&dead);
+	store_session_clear(&other);
+	store_close(s);
+}
+
+/* A reader's open refuses a missing file and creates nothing. */
+static void store_testOpenExisting(void **state)
+{
+	(void)state;
+	char *db = path_in("missing.db");
+	unlink(db);
+	struct store *s = NULL;
+	char *err = NULL;
+	assert_int_equal(store_open_existing(db, &s, &err), -1);
+	assert_null(s);
+	char *want = xasprintf("no database at %s", db);
+	assert_string_equal(err, want);
+	free(want);
+	free(err);
+	err = NULL;
+	struct stat st;
+	assert_int_not_equal(stat(db, &st), 0);
+	assert_int_equal(store_open(db, &s, &err), 0);
+	store_close(s);
+	assert_int_equal(store_open_existing(db, &s, &err), 0);
+	store_close(s);
+	free(db);
+}
+
 static void store_testRecoverAndList(void **state)
 {
 	(void)state;
@@ -487,8 +569,14 @@ static void store_testRecoverAndList(void **state)
 	assert_int_equal(store_session_end(s, c.id, STORE_COMPLETE, &err), 0);
 	put_trials(s, a.id, 0, 3, NULL, NULL);
 	int n = -1;
+	/* Both are owned by this (live) process: nothing to recover yet. */
 	assert_int_equal(store_recover(s, &n, &err), 0);
-	assert_int_equal(n, 2);   /* a and b were running; c was complete */
+	assert_int_equal(n, 0);
+	long gone = dead_pid();
+	assert_int_equal(store_session_own(s, a.id, gone, NULL, &err), 0);
+	assert_int_equal(store_session_own(s, b.id, gone, NULL, &err), 0);
+	assert_int_equal(store_recover(s, &n, &err), 0);
+	assert_int_equal(n, 2);   /* a and b were running with a dead owner; c was complete */
 	assert_int_equal(store_recover(s, &n, &err), 0);
 	assert_int_equal(n, 0);
 
@@ -883,6 +971,8 @@ int main(void)
 		cmocka_unit_test(store_testDuplicateTrialRefused),
 		cmocka_unit_test(store_testEvents),
 		cmocka_unit_test(store_testRecoverAndList),
+		cmocka_unit_test(store_testRecoverOwner),
+		cmocka_unit_test(store_testOpenExisting),
 		cmocka_unit_test(store_testIterator),
 		cmocka_unit_test(store_testDiskFull),
 		cmocka_unit_test(store_testLocked),

@@ -59,13 +59,9 @@ int cmd_export(int argc, char **argv)
 		return usage("bids writes a folder: give --out DIR");
 	if (subject && !store_subject_valid(subject))
 		return usage("--subject takes letters and digits only");
-	if (access(db, F_OK)) {
-		fprintf(stderr, "tachist export: no database at %s\n", db);
-		return EXIT_PROBLEMS;
-	}
 	struct store *s;
 	char *err = NULL;
-	if (store_open(db, &s, &err))
+	if (store_open_existing(db, &s, &err))
 		return fail(err);
 	struct export_stats st;
 	int rc;

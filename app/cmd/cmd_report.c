@@ -879,15 +879,11 @@ int cmd_report(int argc, char **argv)
 		cmd_print_usage("report", stderr);
 		return EXIT_USAGE;
 	}
-	if (access(o.db, F_OK) != 0) {
-		fprintf(stderr, "tachist report: no database at %s (run a session first, or name one "
-			"with --db)\n", o.db);
-		return EXIT_PROBLEMS;
-	}
 	struct store *s;
 	char *err = NULL;
-	if (store_open(o.db, &s, &err) < 0) {
-		fprintf(stderr, "tachist report: %s\n", err);
+	if (store_open_existing(o.db, &s, &err) < 0) {
+		fprintf(stderr, "tachist report: %s (run a session first, or name one with --db)\n",
+			err);
 		free(err);
 		return EXIT_PROBLEMS;
 	}

@@ -61,16 +61,18 @@ int cmd_sessions(int argc, char **argv)
 			return EXIT_USAGE;
 		}
 	}
-	if (access(db, F_OK)) {
-		fprintf(stderr, "tachist sessions: no database at %s\n", db);
-		return EXIT_PROBLEMS;
-	}
 	struct store *s;
 	char *err = NULL;
-	if (store_open(db, &s, &err)) {
+	if (store_open_existing(db, &s, &err)) {
 		fprintf(stderr, "tachist sessions: %s\n", err);
 		free(err);
 		return EXIT_PROBLEMS;
+	}
+	/* A session whose process on this host is gone shows as interrupted at once. A read-only
+	 * database cannot be updated; the list then shows what is stored. */
+	if (store_recover(s, NULL, &err)) {
+		free(err);
+		err = NULL;
 	}
 	struct store_session *v;
 	size_t n;

@@ -55,7 +55,7 @@ static int load_session(struct console *c, struct results *r)
 	char *err = NULL;
 	struct store_iter *it = NULL;
 	int rc = -1;
-	if (store_open(console_options(c)->db_path, &db, &err) != 0)
+	if (store_open_existing(console_options(c)->db_path, &db, &err) != 0)
 		goto out;
 	if (store_session_get(db, r->session_id, &r->ss, &err) != 0)
 		goto out;

@@ -35,7 +35,7 @@ static void load(struct console *c, struct sessions *s)
 	s->error[0] = '\0';
 	struct store *db = NULL;
 	char *err = NULL;
-	if (store_open(console_options(c)->db_path, &db, &err) != 0 ||
+	if (store_open_existing(console_options(c)->db_path, &db, &err) != 0 ||
 	    store_sessions_list(db, NULL, &s->v, &s->n, &err) != 0) {
 		snprintf(s->error, sizeof s->error, "%s", err ? err : "the database cannot be read");
 		s->v = NULL;

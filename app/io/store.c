@@ -17,6 +17,8 @@
  * console and report read through the array and iterator functions. */
 #include <assert.h>
 #include <errno.h>
+#include <limits.h>
+#include <signal.h>
 #include <fcntl.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -306,7 +308,7 @@ const char *store_path(const struct store *s)
 /* ---- schema ---- */
 
 /* The current schema, created whole in a new file. */
-static const char schema_v2[] =
+static const char schema_v3[] =
 	"CREATE TABLE sessions ("
 	" id TEXT PRIMARY KEY NOT NULL,"
 	" subject TEXT NOT NULL,"
@@ -319,7 +321,8 @@ static const char schema_v2[] =
 	" choices TEXT, label_names TEXT,"
 	" observer TEXT,"
 	" screen_width_cm REAL, screen_height_cm REAL, screen_width_px INTEGER,"
-	" screen_height_px INTEGER, distance_cm REAL, nominal_hz REAL, stim_deg REAL);"
+	" screen_height_px INTEGER, distance_cm REAL, nominal_hz REAL, stim_deg REAL,"
+	" owner_pid INTEGER, owner_host TEXT);"
 	"CREATE INDEX sessions_subject ON sessions(subject, started_utc);"
 	"CREATE TABLE trials ("
 	" session_id TEXT NOT NULL REFERENCES sessions(id) ON DELETE CASCADE,"
@@ -345,9 +348,10 @@ static const char schema_v2[] =
 	" session_id TEXT NOT NULL REFERENCES sessions(id) ON DELETE CASCADE,"
 	" seq INTEGER NOT NULL, mono_ns INTEGER, kind TEXT NOT NULL, detail TEXT,"
 	" PRIMARY KEY (session_id, seq)) WITHOUT ROWID;"
-	"PRAGMA user_version = 2;";
+	"PRAGMA user_version = 3;";
 
-/* Version 1 (the first layout) lacked the observer and the presentation settings of a session,
+/* Version 2 lacked the owner of a session (owner_pid, owner_host).
+ * Version 1 (the first layout) lacked the observer and the presentation settings of a session,
  * and the anticipation, SDL key stamp, requested level and repeat columns of a trial. Each step
  * takes the file from version K to K + 1; migrations[K - 1] is that step. */
 static const char *const migrations[] = {
@@ -366,6 +370,11 @@ static const char *const migrations[] = {
 	"ALTER TABLE trials ADD COLUMN repeat_of INTEGER;"
 	"CREATE INDEX IF NOT EXISTS sessions_subject ON sessions(subject, started_utc);"
 	"PRAGMA user_version = 2;",
+	/* 2 -> 3: the process that runs a session (pid and host name), so recovery marks only
+	 * sessions whose process is gone. Sessions from version 2 have no owner. */
+	"ALTER TABLE sessions ADD COLUMN owner_pid INTEGER;"
+	"ALTER TABLE sessions ADD COLUMN owner_host TEXT;"
+	"PRAGMA user_version = 3;",
 };
 
 static int user_version(struct store *s, int *v, char **err)
@@ -423,7 +432,7 @@ static int migrate(struct store *s, char **err)
 	if (exec(s, "BEGIN IMMEDIATE", err, "starting the schema update"))
 		return -1;
 	if (v == 0) {
-		if (exec(s, schema_v2, err, "creating the tables"))
+		if (exec(s, schema_v3, err, "creating the tables"))
 			goto fail;
 	} else {
 		for (int k = v; k < STORE_SCHEMA_VERSION; k++)
@@ -590,6 +599,18 @@ fail:
 	return -1;
 }
 
+int store_open_existing(const char *path, struct store **out, char **err)
+{
+	assert(path && out);
+	*out = NULL;
+	struct stat st;
+	if (stat(path, &st) != 0) {
+		set_err(err, "no database at %s", path);
+		return -1;
+	}
+	return store_open(path, out, err);
+}
+
 void store_close(struct store *s)
 {
 	if (!s)
@@ -686,6 +707,14 @@ void store_session_describe(struct store_session *ss, const struct protocol *p,
 	}
 }
 
+/* This machine's host name (gethostname(2)), "" when unknown. */
+static void this_host(char out[256])
+{
+	if (gethostname(out, 256) != 0)
+		out[0] = '\0';
+	out[255] = '\0';
+}
+
 int store_session_begin(struct store *s, struct store_session *ss, char **err)
 {
 	if (!store_subject_valid(ss->subject)) {
@@ -710,9 +739,10 @@ int store_session_begin(struct store *s, struct store_session *ss, char **err)
 		"INSERT INTO sessions (id, subject, protocol_name, protocol_path, protocol_text,"
 		" protocol_sha256, stimuli_path, stimuli_sha256, rig_text, seed, version, timing_mode,"
 		" refresh_hz, started_utc, status, observer, screen_width_cm, screen_height_cm,"
-		" screen_width_px, screen_height_px, distance_cm, nominal_hz, stim_deg)"
+		" screen_width_px, screen_height_px, distance_cm, nominal_hz, stim_deg, owner_pid,"
+		" owner_host)"
 		" VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, 'running',"
-		" ?15, ?16, ?17, ?18, ?19, ?20, ?21, ?22)", err, "creating the session");
+		" ?15, ?16, ?17, ?18, ?19, ?20, ?21, ?22, ?23, ?24)", err, "creating the session");
 	if (!st)
 		return -1;
 	bind_text(st, 1, ss->id);
@@ -738,6 +768,10 @@ int store_session_begin(struct store *s, struct store_session *ss, char **err)
 	bind_pos_double(st, 20, ss->distance_cm);
 	bind_pos_double(st, 21, ss->nominal_hz);
 	bind_pos_double(st, 22, ss->stim_deg);
+	char host[256];
+	this_host(host);
+	sqlite3_bind_int64(st, 23, (sqlite3_int64)getpid());
+	bind_text(st, 24, host);
 	int rc = sqlite3_step(st);
 	sqlite3_finalize(st);
 	if (rc != SQLITE_DONE)
@@ -786,18 +820,86 @@ int store_session_end(struct store *s, const char *session_id, enum store_status
 	return update_session(s, st, session_id, err, "ending the session");
 }
 
-int store_recover(struct store *s, int *n, char **err)
+int store_session_own(struct store *s, const char *session_id, long pid, const char *host,
+		      char **err)
 {
-	sqlite3_stmt *st = prep(s, "UPDATE sessions SET status = 'interrupted'"
-				" WHERE status = 'running'", err, "recovering sessions");
+	char here[256];
+	if (!host) {
+		this_host(here);
+		host = here;
+	}
+	sqlite3_stmt *st = prep(s, "UPDATE sessions SET status = 'running', ended_utc = NULL,"
+				" owner_pid = ?2, owner_host = ?3 WHERE id = ?1", err,
+				"taking over the session");
 	if (!st)
 		return -1;
-	int rc = sqlite3_step(st);
-	sqlite3_finalize(st);
-	if (rc != SQLITE_DONE)
-		return db_fail(s, err, "marking crashed sessions interrupted");
+	bind_text(st, 1, session_id);
+	sqlite3_bind_int64(st, 2, (sqlite3_int64)pid);
+	bind_text(st, 3, host);
+	return update_session(s, st, session_id, err, "taking over the session");
+}
+
+/* True when the process PID on this host is gone (kill(2) with signal 0 says ESRCH). A process
+ * we may not signal (EPERM) is alive. */
+static bool owner_gone(long pid)
+{
+	if (pid <= 0 || pid > INT_MAX)
+		return true;
+	return kill((pid_t)pid, 0) == -1 && errno == ESRCH;
+}
+
+int store_recover(struct store *s, int *n, char **err)
+{
 	if (n)
-		*n = sqlite3_changes(s->db);
+		*n = 0;
+	char host[256];
+	this_host(host);
+	/* The running sessions that may be orphans: no owner recorded (written before schema
+	 * version 3) or owned on this host. Other hosts' sessions are left alone. */
+	sqlite3_stmt *st = prep(s, "SELECT id, owner_pid FROM sessions WHERE status = 'running'"
+				" AND (owner_host IS NULL OR owner_host = ?1)", err,
+				"recovering sessions");
+	if (!st)
+		return -1;
+	bind_text(st, 1, host);
+	size_t cap = 0, k = 0;
+	char (*ids)[37] = NULL;
+	int rc;
+	while ((rc = sqlite3_step(st)) == SQLITE_ROW) {
+		bool owned = sqlite3_column_type(st, 1) != SQLITE_NULL;
+		if (owned && !owner_gone((long)sqlite3_column_int64(st, 1)))
+			continue;
+		if (k == cap) {
+			cap = cap ? 2 * cap : 8;
+			ids = xrealloc(ids, cap * sizeof *ids);
+		}
+		snprintf(ids[k++], 37, "%s", col_text(st, 0) ? col_text(st, 0) : "");
+	}
+	sqlite3_finalize(st);
+	if (rc != SQLITE_DONE) {
+		free(ids);
+		return db_fail(s, err, "recovering sessions");
+	}
+	int done = 0;
+	for (size_t i = 0; i < k; i++) {
+		st = prep(s, "UPDATE sessions SET status = 'interrupted' WHERE id = ?1"
+			  " AND status = 'running'", err, "recovering sessions");
+		if (!st) {
+			free(ids);
+			return -1;
+		}
+		bind_text(st, 1, ids[i]);
+		rc = sqlite3_step(st);
+		sqlite3_finalize(st);
+		if (rc != SQLITE_DONE) {
+			free(ids);
+			return db_fail(s, err, "marking crashed sessions interrupted");
+		}
+		done += sqlite3_changes(s->db);
+	}
+	free(ids);
+	if (n)
+		*n = done;
 	return 0;
 }
 
@@ -1656,7 +1758,8 @@ static const char merge_session_cols[] =
 	"id, subject, protocol_name, protocol_path, protocol_text, protocol_sha256, stimuli_path,"
 	" stimuli_sha256, rig_text, seed, version, timing_mode, refresh_hz, started_utc, ended_utc,"
 	" status, choices, label_names, observer, screen_width_cm, screen_height_cm,"
-	" screen_width_px, screen_height_px, distance_cm, nominal_hz, stim_deg";
+	" screen_width_px, screen_height_px, distance_cm, nominal_hz, stim_deg, owner_pid,"
+	" owner_host";
 
 static const char merge_trial_cols[] =
 	"session_id, trial, block, block_name, block_trial, practice, stim, image, category,"

@@ -3,7 +3,8 @@
  * The virtual clock keeps an integer timeline: base_ns advances by period_ns (plus the lost periods
  * of an injected drop) at every flip; the returned stamp is base_ns plus an optional jitter offset
  * bounded well inside one period, so stamps stay strictly increasing and frame counts computed by
- * rounding intervals stay exact. Randomness comes from a GSL mt19937 seeded by the caller. */
+ * rounding intervals stay exact. A paced clock maps the timeline to real time through real0_ns,
+ * re-based when a flip comes more than one period late (an idle gap). Randomness comes from a GSL mt19937 seeded by the caller. */
 #include "dclock.h"
 
 #include <errno.h>
@@ -109,8 +110,18 @@ static int64_t virtual_flip(struct dclock *c)
 	if (t <= v->last_ns)
 		t = v->last_ns + 1;
 	v->last_ns = t;
-	if (v->o.pace)
-		sleep_until(v->real0_ns + (t - v->origin_ns));
+	if (v->o.pace) {
+		/* After an idle gap (no flips between blocks or in a pause) real time is ahead of
+		 * the timeline; the real-time origin is re-based so this flip happens now and the
+		 * following ones are paced again, instead of rushing until the timeline catches
+		 * up. The stamps themselves never depend on pacing. */
+		int64_t target = v->real0_ns + (t - v->origin_ns);
+		int64_t real = dclock_monotonic_ns();
+		if (real - target > c->period_ns)
+			v->real0_ns += real - target;
+		else
+			sleep_until(target);
+	}
 	return t;
 }
 

@@ -381,6 +381,12 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 			*err = xasprintf("session %s is already complete", s->ss.id);
 			goto fail;
 		}
+		if (s->ss.status == STORE_RUNNING) {
+			/* Recovery left it running: its process is alive here or it runs elsewhere. */
+			*err = xasprintf("session %.8s is still running in another process (here or on "
+					 "another host); resume it once that run has ended", s->ss.id);
+			goto fail;
+		}
 		if (load_inputs(s, o, s->ss.rig_text, s->ss.seed, d, err))
 			goto fail;
 		char hex[65];
@@ -425,6 +431,16 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 			goto fail;
 		}
 		free(detail);
+		/* From here the session is running again, owned by this process. */
+		char *was = xasprintf("running again (was %s), pid %ld",
+				      store_status_name(s->ss.status), (long)getpid());
+		int rc = store_session_own(s->store, s->ss.id, (long)getpid(), NULL, err);
+		if (!rc)
+			rc = store_event(s->store, s->ss.id, "status", was, err);
+		free(was);
+		if (rc)
+			goto fail;
+		s->ss.status = STORE_RUNNING;
 	} else {
 		store_session_describe(&s->ss, &s->proto, &s->list, &s->rig);
 		free(s->ss.subject);

@@ -38,6 +38,6 @@ expect_eq "failed merges changed nothing" "5 34 30 5" "$(count "$WORK/all.db")"
 
 # Opening a version-1 file in place migrates it (sessions reads it).
 expect_exit "sessions on a version-1 file" 0 "$TACHIST" sessions --db "$WORK/v1.db"
-expect_eq "the file is now version 2" 2 "$(sqlite3 "$WORK/v1.db" 'PRAGMA user_version')"
+expect_eq "the file is now version 3" 3 "$(sqlite3 "$WORK/v1.db" 'PRAGMA user_version')"
 expect_eq "its trials survived the migration" "3 512.5" "$(sqlite3 "$WORK/v1.db" "SELECT count(*) || ' ' || (SELECT rt_ms FROM trials WHERE trial = 0) FROM trials")"
 expect_eq "new columns have their defaults" "0|" "$(sqlite3 "$WORK/v1.db" 'SELECT anticipation, level_requested FROM trials WHERE trial = 0')"

@@ -112,6 +112,7 @@ check "no NaN in any figure" sh -c "! grep -qi 'nan' '$WORK/plots/'*.svg"
 # Bad input.
 expect_exit "no database exits 1" 1 "$TACHIST" report --db "$WORK/none.db"
 check "no database says so" grep -q "no database at" "$WORK/last.err"
+check "and creates no file" test ! -e "$WORK/none.db"
 check "empty database written" "$FIX" "$WORK/empty.db" --subjects 0
 expect_exit "empty database exits 1" 1 "$TACHIST" report --db "$WORK/empty.db"
 check "empty database says so" grep -q "holds no sessions yet" "$WORK/last.err"

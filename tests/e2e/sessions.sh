@@ -8,6 +8,9 @@ check "missing database is not created" test ! -e "$DB"
 expect_exit "bad option is a usage error" 2 "$TACHIST" sessions --db "$DB" --bogus
 "$FILL" "$DB" 2 7 --subject S01 >/dev/null
 "$FILL" "$DB" 1 3 --subject S02 --running >"$WORK/run.id"
+# store_fill has exited: the session it left running belongs to a gone process on this host.
+# Here it is handed to this (live) shell so it stays running; the recovery case is checked below.
+sqlite3 "$DB" "UPDATE sessions SET owner_pid = $$, owner_host = '$(uname -n)' WHERE id = '$(cat "$WORK/run.id")'"
 expect_exit "sessions lists" 0 "$TACHIST" sessions --db "$DB"
 expect_eq "one line per session plus the header" 4 "$(wc -l <"$WORK/last.out")"
 check "a running session shows as running" grep -q "^$(cut -c1-8 "$WORK/run.id")  S02 .* running  *3 " "$WORK/last.out"
@@ -24,3 +27,12 @@ check "and says it has no sessions" grep -q "no sessions" "$WORK/last.out"
 printf 'not a database at all, just some text that fills more than a header\n%.0s' 1 2 3 4 5 6 7 8 >"$WORK/junk.db"
 expect_exit "a file that is not a database fails" 1 "$TACHIST" sessions --db "$WORK/junk.db"
 check "with a message saying so" grep -q "not a database" "$WORK/last.err"
+# Recovery on listing: a running session whose process on this host is gone shows as
+# interrupted at once; one owned on another host is left running.
+"$FILL" "$DB" 1 2 --subject S03 --running >"$WORK/dead.id"
+"$FILL" "$DB" 1 2 --subject S04 --running >"$WORK/far.id"
+sqlite3 "$DB" "UPDATE sessions SET owner_host = 'elsewhere.invalid' WHERE id = '$(cat "$WORK/far.id")'"
+expect_exit "sessions after a crash" 0 "$TACHIST" sessions --db "$DB"
+check "the crashed session shows interrupted" grep -q "^$(cut -c1-8 "$WORK/dead.id")  S03 .* interrupted " "$WORK/last.out"
+check "another host's session stays running" grep -q "^$(cut -c1-8 "$WORK/far.id")  S04 .* running " "$WORK/last.out"
+check "the live owner's session stays running" grep -q "^$(cut -c1-8 "$WORK/run.id")  S02 .* running " "$WORK/last.out"
