@@ -55,7 +55,9 @@ struct analysis_opts {
 	struct fit_opts fit_opts;     /* m must match */
 	bool shape_auto;              /* Weibull where proportion correct rises with the level,
 					 logistic where it falls (fit_opts.shape is then ignored) */
-	double ceiling, floor_margin; /* item flags: pc ≥ ceiling; pc ≤ 1/m + floor_margin */
+	double ceiling, floor_margin; /* item flags: pc ≥ ceiling; pc ≤ 1/m + floor_margin, each
+				       only when the item's Wilson 95% interval lies wholly
+				       above (ceiling) or below (floor) halfway from chance to 1 */
 };
 
 /* Defaults for M choices: Wilson 95%, fits on with fit_opts_default, ceiling 0.95, floor at

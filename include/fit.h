@@ -51,6 +51,9 @@ struct fit_result {
 	enum fit_status status;
 	char reason[320];      /* sentence for people when status != FIT_OK */
 	struct psyfn f;        /* fitted function (shape, α, β, γ, λ) */
+	bool slope_bounded;    /* β sits on the steepness bound: the 10–90% rise of F spans the
+				  smallest spacing between tested levels (ln levels for the
+				  Weibull); steeper data are fitted there, see fit.c */
 	double loglik;         /* binomial log-likelihood without the constant */
 	double deviance;       /* against the saturated model of the grouped points */
 	int dof;               /* points minus free parameters */

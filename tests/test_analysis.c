@@ -108,6 +108,29 @@ static void analysis_testConfusions(void **state)
 	analysis_destroy(a);
 }
 
+/* Items with enough trials are flagged: 8 of 8 (Wilson lower 0.676 > 2/3) at ceiling, 0 of 8
+ * (upper 0.324 < 2/3) at floor; 6 of 6 (lower 0.610) is not yet evidence of a ceiling. Wilson
+ * bounds: z = 1.96 score interval, worked by hand (n/(n+z²) for k = n). */
+static void analysis_testItemFlagsNeedEvidence(void **state)
+{
+	(void)state;
+	struct analysis_row v[22];
+	size_t n = 0;
+	for (int i = 0; i < 8; i++) {
+		v[n++] = (struct analysis_row)ROW("S1", 0, 1.0, "a.png", "ring", "ring", 1, 400);
+		v[n++] = (struct analysis_row)ROW("S1", 0, 1.0, "b.png", "star", "wave", 0, 400);
+	}
+	for (int i = 0; i < 6; i++)
+		v[n++] = (struct analysis_row)ROW("S1", 0, 2.0, "c.png", "wave", "wave", 1, 400);
+	struct analysis *a = run_rows(v, n);
+	assert_int_equal(a->nitems, 3);
+	assert_true(a->items[0].ceiling);   /* a.png, ring */
+	assert_false(a->items[0].floor);
+	assert_true(a->items[1].floor);     /* b.png, star */
+	assert_false(a->items[2].ceiling);  /* c.png, wave: 6 of 6 */
+	analysis_destroy(a);
+}
+
 static void analysis_testItemsAndCategories(void **state)
 {
 	(void)state;
@@ -118,8 +141,10 @@ static void analysis_testItemsAndCategories(void **state)
 	assert_int_equal(a->items[0].n, 2);
 	assert_int_equal(a->items[0].k, 1);
 	assert_false(a->items[0].ceiling);
-	assert_true(a->items[1].floor);        /* r2: 0 of 1, at or below chance 1/3 */
-	assert_true(a->items[2].ceiling);      /* r3: 1 of 1 */
+	/* One trial is no evidence: r2 (0 of 1; Wilson [0, 0.79]) and r3 (1 of 1; [0.21, 1]) both
+	 * straddle 2/3, halfway between chance 1/3 and 1, so neither is flagged. */
+	assert_false(a->items[1].floor);
+	assert_false(a->items[2].ceiling);
 	assert_string_equal(a->items[4].image, "s2.png");
 	assert_float_equal(a->items[4].median_rt, 320, 0);   /* the 80 ms anticipation left out */
 	assert_string_equal(a->items[6].image, "w1.png");
@@ -216,6 +241,7 @@ int main(void)
 		cmocka_unit_test(analysis_testConditions),
 		cmocka_unit_test(analysis_testConfusions),
 		cmocka_unit_test(analysis_testItemsAndCategories),
+		cmocka_unit_test(analysis_testItemFlagsNeedEvidence),
 		cmocka_unit_test(analysis_testTiming),
 		cmocka_unit_test(analysis_testShapeAuto),
 		cmocka_unit_test(analysis_testPooledAndEdges),

@@ -84,6 +84,41 @@ static void fit_testFallingData(void **state)
 	}
 }
 
+/* Steep falling data from a demo session (6AFC, levels 0/8/16/32: 36/36, 36/36, 24/36, 9/36):
+ * the ML slope runs to a step, but level 16 is caught mid-fall (Wilson interval above chance and
+ * below 1), so the fit is reported with β on the steepness bound — the 10–90% fall spans the
+ * smallest level spacing, 8: |β| = 8/(2·ln 9) for the logistic (algebra, see fit.c). A jump with
+ * no level caught in between is still refused. */
+static void fit_testSteepSlopeBounded(void **state)
+{
+	(void)state;
+	struct fit_point pts[] = {{0, 36, 36}, {8, 36, 36}, {16, 36, 24}, {32, 36, 9}};
+	struct fit_opts o;
+	fit_opts_default(&o, 6);
+	o.shape = PSYFN_LOGISTIC;
+	o.nboot = 200;
+	struct fit_result r;
+	assert_int_equal(fit_run(pts, 4, &o, &r), 0);
+	assert_true(r.slope_bounded);
+	assert_float_equal(r.f.beta, -8 / (2 * log(9.0)), 1e-9);
+	assert_true(r.threshold_ok && r.threshold > 8 && r.threshold < 32);
+	assert_true(r.has_ci);
+	assert_true(r.threshold_ci[0] < r.threshold && r.threshold < r.threshold_ci[1]);
+	/* Data that constrain the slope do not touch the bound (see fit_testFallingData). */
+	struct fit_point step[] = {{1, 40, 20}, {2, 40, 21}, {3, 40, 40}, {4, 40, 40}};
+	o.m = 2;
+	assert_int_equal(fit_run(step, 4, &o, &r), -1);
+	assert_non_null(strstr(r.reason, "slope cannot be estimated"));
+	/* Weibull: the bound is on the exponent, in ln level spacing (ln 2 here):
+	 * β ≤ (ln(−ln 0.1) − ln(−ln 0.9))/ln 2. */
+	struct fit_point rise[] = {{1, 40, 7}, {2, 40, 7}, {4, 40, 26}, {8, 40, 40}};
+	o.m = 6;
+	o.shape = PSYFN_WEIBULL;
+	o.nboot = 0;
+	assert_int_equal(fit_run(rise, 4, &o, &r), 0);
+	assert_true(r.f.beta <= (log(-log(0.1)) - log(-log(0.9))) / log(2.0) + 1e-9);
+}
+
 /* Trial rows grouped by fit_group give the same fit as the counts. */
 static void fit_testGroupedEqualsTrials(void **state)
 {
@@ -266,6 +301,7 @@ int main(void)
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(fit_testRecoversKnownParameters),
 		cmocka_unit_test(fit_testFallingData),
+		cmocka_unit_test(fit_testSteepSlopeBounded),
 		cmocka_unit_test(fit_testGroupedEqualsTrials),
 		cmocka_unit_test(fit_testSaturatedDeviance),
 		cmocka_unit_test(fit_testUnsupportedData),

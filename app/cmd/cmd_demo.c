@@ -13,7 +13,7 @@
 
 /* Noise budgets 0, 8, 16, 32: a mirrored Weibull (accuracy falls as the budget grows) near
  * ceiling at 8, about 60% at 16, near chance at 32. Invented for the demo. */
-#define DEMO_MODEL "model:shape=weibull,threshold=20,slope=-3,lapse=0.02,rt=650,seed=1"
+#define DEMO_MODEL "model:shape=weibull,threshold=18,slope=-2,lapse=0.02,rt=650,seed=1"
 
 /* Accuracy per level of the session's main-block trials, read back from the database. */
 static void print_levels(const char *db, const char *id)

@@ -41,6 +41,7 @@ static void print_json(const struct fit_result *r, const struct fit_opts *o, enu
 	cJSON_AddNumberToObject(j, "trials", (double)r->ntrials);
 	cJSON_AddItemToObject(j, "alpha", num_or_null(r->f.alpha, ok));
 	cJSON_AddItemToObject(j, "beta", num_or_null(r->f.beta, ok));
+	cJSON_AddBoolToObject(j, "slope_bounded", ok && r->slope_bounded);
 	cJSON_AddItemToObject(j, "lambda", num_or_null(r->f.lambda, ok));
 	cJSON_AddBoolToObject(j, "lambda_free", o->lapse_free);
 	cJSON_AddNumberToObject(j, "pc", o->pc_threshold);
@@ -91,6 +92,8 @@ static void print_text(const struct fit_result *r, const struct fit_opts *o, con
 	print_interval(acis[0], ci);
 	printf("\n%-24s %10.4g", "beta (slope)", r->f.beta);
 	print_interval(acis[1], ci);
+	if (r->slope_bounded)
+		printf(" (at the steepness bound: the data allow any steeper slope)");
 	printf("\n%-24s %10.4g", "lambda (lapse)", r->f.lambda);
 	if (o->lapse_free)
 		print_interval(acis[2], ci);

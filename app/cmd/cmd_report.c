@@ -480,8 +480,9 @@ static void print_fits(const struct analysis *a)
 			printf("no fit: %s\n", r->reason);
 			continue;
 		}
-		printf("%s alpha %.4g, beta %.4g, lambda %.3g, deviance %.3g on %d df\n",
-		       psyfn_shape_name(r->f.shape), r->f.alpha, r->f.beta, r->f.lambda, r->deviance,
+		printf("%s alpha %.4g, beta %.4g%s, lambda %.3g, deviance %.3g on %d df\n",
+		       psyfn_shape_name(r->f.shape), r->f.alpha, r->f.beta,
+		       r->slope_bounded ? " (steepness bound)" : "", r->f.lambda, r->deviance,
 		       r->dof);
 		if (r->threshold_ok) {
 			printf("      threshold %.4g", r->threshold);
@@ -704,6 +705,7 @@ static cJSON *json_doc(const struct analysis *a, const struct ropts *o, const st
 		cJSON_AddStringToObject(e, "shape", psyfn_shape_name(r->f.shape));
 		cJSON_AddItemToObject(e, "alpha", jnum(ok ? r->f.alpha : NAN));
 		cJSON_AddItemToObject(e, "beta", jnum(ok ? r->f.beta : NAN));
+		cJSON_AddBoolToObject(e, "slope_bounded", ok && r->slope_bounded);
 		cJSON_AddItemToObject(e, "lambda", jnum(ok ? r->f.lambda : NAN));
 		cJSON_AddNumberToObject(e, "pc", r->pc_threshold);
 		cJSON_AddItemToObject(e, "threshold", jnum(ok && r->threshold_ok ? r->threshold : NAN));

@@ -3,9 +3,9 @@
  * (data points, their intervals, the fitted function and its threshold), the confusion matrix as a
  * shaded grid, and timing quality. The numbers come from the analysis module (the same tables as
  * `tachist report`) over the session's stored trials; practice trials are left out as there.
- * The curve's fit is a logistic made here without the bootstrap, so the screen opens at once,
- * mirrored when accuracy falls as the level rises; `tachist report` gives the full fits with
- * their intervals. */
+ * The curve's fit is the analysis module's (the same shapes and rules as `tachist report`, rising
+ * or falling with the level), run without the bootstrap so the screen opens at once; `tachist
+ * report` gives the intervals. */
 #include "console.h"
 
 #include <curses.h>
@@ -36,8 +36,6 @@ struct results {
 	size_t top;          /* accuracy: first row shown */
 	size_t series;       /* curve: which series */
 	size_t level;        /* confusion: which level */
-	struct fit_result *fits;   /* the curve's fit per series, made when first shown */
-	bool *fitted, *mirror;
 };
 
 static const struct console_key results_keys[] = {
@@ -117,7 +115,8 @@ static void analyse(struct results *r)
 	int m = r->nchoices >= 2 ? (int)r->nchoices : 2;
 	struct analysis_opts o;
 	analysis_opts_default(&o, m);
-	o.fit_opts.nboot = 0;   /* the curve view makes its own fit; no bootstrap wait here */
+	o.fit_opts.nboot = 0;   /* the curve view shows the point fit; no bootstrap wait here */
+	o.shape_auto = true;    /* as `tachist report`: Weibull rising, logistic falling */
 	r->a = analysis_run(r->rows, r->ntrials, &r->asess, 1, &o);
 }
 
@@ -175,40 +174,6 @@ static void draw_accuracy(struct console *c, struct results *r, int y)
 
 /* ---- curve ---- */
 
-/* The curve's fit for series I, made once: a logistic over the levels, mirrored (fitted on
- * -level) when accuracy falls as the level rises, as with noise budgets; the analysis module's
- * fits assume accuracy rises with the level. */
-static const struct fit_result *curve_fit(struct results *r, size_t i, bool *mirrored)
-{
-	const struct analysis_series *s = &r->a->series[i];
-	if (!r->fits) {
-		r->fits = xcalloc(r->a->nseries, sizeof *r->fits);
-		r->fitted = xcalloc(r->a->nseries, sizeof *r->fitted);
-		r->mirror = xcalloc(r->a->nseries, sizeof *r->mirror);
-	}
-	if (!r->fitted[i]) {
-		r->fitted[i] = true;
-		double lo_pc = s->npts && s->pts[0].n ? (double)s->pts[0].k / s->pts[0].n : 0;
-		const struct fit_point *last = &s->pts[s->npts ? s->npts - 1 : 0];
-		double hi_pc = s->npts && last->n ? (double)last->k / last->n : 0;
-		r->mirror[i] = hi_pc < lo_pc;
-		struct fit_point *pts = xcalloc(s->npts ? s->npts : 1, sizeof *pts);
-		for (size_t k = 0; k < s->npts; k++) {
-			pts[k] = s->pts[k];
-			if (r->mirror[i])
-				pts[k].level = -pts[k].level;
-		}
-		struct fit_opts o;
-		fit_opts_default(&o, r->a->opts.m);
-		o.shape = PSYFN_LOGISTIC;
-		o.nboot = 0;
-		fit_run(pts, s->npts, &o, &r->fits[i]);
-		free(pts);
-	}
-	*mirrored = r->mirror[i];
-	return &r->fits[i];
-}
-
 static int row_of(double p, int top, int ph)
 {
 	return top + (int)lround((1.0 - p) * (ph - 1));
@@ -227,23 +192,22 @@ static void draw_curve(struct console *c, struct results *r, int y)
 	if (r->series >= a->nseries)
 		r->series = a->nseries - 1;
 	const struct analysis_series *s = &a->series[r->series];
-	bool mirrored = false;
-	const struct fit_result *fr = curve_fit(r, r->series, &mirrored);
-	double sign = mirrored ? -1 : 1;
+	const struct fit_result *fr = &s->fit;
 	console_putf(c, y++, 2, w, CONSOLE_PLAIN, "Block \"%s\"  (series %zu of %zu, Left/Right)",
 		     s->block_name ? s->block_name : "", r->series + 1, a->nseries);
 	if (fr->status == FIT_OK) {
 		char thr[80] = "";
 		if (fr->threshold_ok)
 			snprintf(thr, sizeof thr, "; %.0f%% correct at level %.4g",
-				 100 * fr->pc_threshold, sign * fr->threshold);
+				 100 * fr->pc_threshold, fr->threshold);
 		console_putf(c, y++, 2, w, CONSOLE_OK,
-			     "logistic fit%s: midpoint %.4g, spread %.4g, lapse %.3f%s",
-			     mirrored ? " (accuracy falls as the level rises)" : "",
-			     sign * fr->f.alpha, fr->f.beta, fr->f.lambda, thr);
+			     "%s fit%s: alpha %.4g, beta %.4g%s, lapse %.3f%s",
+			     psyfn_shape_name(fr->f.shape),
+			     fr->f.beta < 0 ? " (accuracy falls as the level rises)" : "",
+			     fr->f.alpha, fr->f.beta, fr->slope_bounded ? " (steepness bound)" : "",
+			     fr->f.lambda, thr);
 	} else {
-		console_putf(c, y++, 2, w, CONSOLE_WARN, "no fit%s: %s",
-			     mirrored ? " (tried on -level, as accuracy falls with the level)" : "",
+		console_putf(c, y++, 2, w, CONSOLE_WARN, "no fit: %s",
 			     fr->reason[0] ? fr->reason : "the data cannot support one");
 	}
 	if (!s->npts)
@@ -280,7 +244,7 @@ static void draw_curve(struct console *c, struct results *r, int y)
 	if (fr->status == FIT_OK)
 		for (int col = 0; col < pw; col++) {
 			double x = lo + (hi - lo) * col / (pw - 1);
-			double p = psyfn_eval(&fr->f, sign * x);
+			double p = psyfn_eval(&fr->f, x);
 			if (isfinite(p))
 				console_put(c, row_of(p, top, ph), ax + col, 1, CONSOLE_OK,
 					    u ? "\u2219" : ".");
@@ -298,7 +262,7 @@ static void draw_curve(struct console *c, struct results *r, int y)
 			    u ? "\u25cf" : "o");
 	}
 	if (fr->status == FIT_OK && fr->threshold_ok) {
-		double t = sign * fr->threshold;
+		double t = fr->threshold;
 		if (t >= lo && t <= hi)
 			console_put(c, top + ph, ax + (int)lround((t - lo) / (hi - lo) * (pw - 1)), 1,
 				    CONSOLE_WARN, u ? "\u25b2" : "^");
@@ -478,9 +442,6 @@ static void results_destroy(void *st)
 {
 	struct results *r = st;
 	analysis_destroy(r->a);
-	free(r->fits);
-	free(r->fitted);
-	free(r->mirror);
 	free(r->rows);
 	store_trials_free(r->trials, r->ntrials);
 	for (size_t i = 0; i < r->nchoices; i++)

@@ -284,8 +284,15 @@ static void items(struct analysis *a, const struct analysis_row **v, size_t n, d
 			}
 			it->median_rt = stats_median(scratch, nrt);
 			it->pc = it->n ? (double)it->k / (double)it->n : NAN;
-			it->ceiling = it->n && it->pc >= o->ceiling;
-			it->floor = it->n && it->pc <= 1.0 / o->m + o->floor_margin;
+			/* A flag needs evidence as well as the proportion: the item's Wilson 95%
+			 * interval must lie wholly above (ceiling) or below (floor) the point halfway
+			 * between chance and 1, so "0 of 1" or "1 of 1" flags nothing (rule: ours,
+			 * common practice, no source; README "Items"). */
+			double lo = 0, hi = 1, mid = 1.0 / o->m + (1 - 1.0 / o->m) / 2;
+			if (it->n)
+				stats_ci(STATS_CI_WILSON, it->k, it->n, 0.95, &lo, &hi);
+			it->ceiling = it->n && it->pc >= o->ceiling && lo > mid;
+			it->floor = it->n && it->pc <= 1.0 / o->m + o->floor_margin && hi < mid;
 			ca->n += it->n;
 			ca->k += it->k;
 			i = j;

@@ -27,6 +27,7 @@
 #include <gsl/gsl_statistics_double.h>
 
 #include "diag.h"
+#include "stats.h"
 
 #define P_EPS 1e-12
 
@@ -39,6 +40,7 @@ struct model {
 	bool lapse_free;
 	double lapse, lapse_max;
 	double sign;               /* +1: P rises with the level; −1: it falls (logistic, normal) */
+	double lnb_lim;            /* steepness bound on ln β (see slope_bound); ±inf = none */
 	size_t npar;
 };
 
@@ -73,18 +75,36 @@ int fit_lapse_parse(const char *s, struct fit_opts *o)
 	return 0;
 }
 
+/* θ1 -> ln β held to the steepness bound: at least lnb_lim for the logistic and normal (β is a
+ * scale), at most lnb_lim for the Weibull (β is an exponent). Past the bound the likelihood is flat
+ * in θ1, so the optimum of a runaway slope sits on the bound. */
+static double lnb(const struct model *md, double t1)
+{
+	if (md->shape == PSYFN_WEIBULL)
+		return t1 > md->lnb_lim ? md->lnb_lim : t1;
+	return t1 < md->lnb_lim ? md->lnb_lim : t1;
+}
+
+static bool at_bound(const struct model *md, double t1)
+{
+	if (!isfinite(md->lnb_lim))
+		return false;
+	return md->shape == PSYFN_WEIBULL ? t1 >= md->lnb_lim : t1 <= md->lnb_lim;
+}
+
 /* θ -> α, β, λ. */
 static void decode(const struct model *md, const double *th, double *a, double *b, double *l)
 {
 	*a = md->shape == PSYFN_WEIBULL ? exp(th[0]) : th[0];
-	*b = md->sign * exp(th[1]);
+	*b = md->sign * exp(lnb(md, th[1]));
 	*l = md->lapse_free ? md->lapse_max * (1 + sin(th[2])) / 2 : md->lapse;
 }
 
 /* F, dF/dθ0 and dF/dθ1 at point I. */
 static double core(const struct model *md, size_t i, const double *th, double *d0, double *d1)
 {
-	double b = md->sign * exp(th[1]);   /* z = (x − α)/β keeps dz/dθ1 = −z for either sign */
+	double b = md->sign * exp(lnb(md, th[1]));   /* z = (x − α)/β: dz/dθ1 = −z for either sign */
+	double g1 = at_bound(md, th[1]) ? 0 : 1;      /* flat in θ1 past the bound */
 	if (md->shape == PSYFN_WEIBULL) {
 		if (md->logx[i] == -INFINITY) {
 			*d0 = *d1 = 0;
@@ -94,7 +114,7 @@ static double core(const struct model *md, size_t i, const double *th, double *d
 		double u = exp(b * t);
 		double e = exp(-u);
 		*d0 = e * (-b * u);
-		*d1 = e * (u * b * t);
+		*d1 = g1 * e * (u * b * t);
 		return -expm1(-u);
 	}
 	double z = (md->x[i] - th[0]) / b, F, f;
@@ -106,7 +126,7 @@ static double core(const struct model *md, size_t i, const double *th, double *d
 		f = exp(-0.5 * z * z) * 0.3989422804014327;   /* φ(z) = e^(−z²/2)/√(2π) */
 	}
 	*d0 = -f / b;
-	*d1 = -f * z;
+	*d1 = -g1 * f * z;
 	return F;
 }
 
@@ -138,6 +158,15 @@ static double nll(const struct model *md, const double *th, double *g)
 			g[1] += w * s * d1;
 			g[2] += w * (-F) * dl;
 		}
+	}
+	/* Past the steepness bound the likelihood is flat in θ1; a quadratic wall there gives the
+	 * minimisers a unique optimum on the bound (the wall is 0 on the bound, so the fitted
+	 * likelihood is unchanged). */
+	if (at_bound(md, th[1])) {
+		double e = th[1] - md->lnb_lim;
+		sum += e * e;
+		if (g)
+			g[1] += 2 * e;
 	}
 	return sum;
 }
@@ -269,6 +298,33 @@ int fit_direction(const struct fit_point *pts, size_t npts)
 	return d < 0 ? -1 : 1;
 }
 
+/* The steepness bound, in ln β: the fitted F must take at least the smallest spacing g between
+ * adjacent tested levels (in ln level for the Weibull, whose F is a Gumbel CDF in ln x) to rise
+ * from 0.1 to 0.9. Steeper functions are indistinguishable from a step on the levels tested, and
+ * without the bound the ML slope of such data runs to infinity. The 10–90% width of each shape:
+ * logistic 2·ln 9·β, normal 2·z(0.9)·β, Weibull (ln(−ln 0.1) − ln(−ln 0.9))/β. Recalled from
+ * memory: psignifit 4 (Schütt, Harmeling, Macke & Wichmann 2016, Vision Research 122) lets its
+ * width prior fall to zero below the smallest level spacing for the same reason. */
+static double slope_bound(const struct model *md)
+{
+	double g = INFINITY, prev = NAN;
+	for (size_t i = 0; i < md->n; i++) {
+		double u = md->shape == PSYFN_WEIBULL ? md->logx[i] : md->x[i];
+		if (!isfinite(u))
+			continue;
+		if (isfinite(prev) && u - prev < g)
+			g = u - prev;
+		prev = u;
+	}
+	bool weib = md->shape == PSYFN_WEIBULL;
+	if (!(g > 0 && isfinite(g)))
+		return weib ? INFINITY : -INFINITY;
+	if (weib)
+		return log((log(-log(0.1)) - log(-log(0.9))) / g);
+	double w = md->shape == PSYFN_LOGISTIC ? 2 * log(9.0) : 2 * gsl_cdf_ugaussian_Pinv(0.9);
+	return log(g / w);
+}
+
 /* Builds the model from the points: sorted, merged, empty points dropped. */
 static void model_init(struct model *md, const struct fit_point *pts, size_t npts,
 		       const struct fit_opts *o)
@@ -306,6 +362,7 @@ static void model_init(struct model *md, const struct fit_point *pts, size_t npt
 	md->sign = o->direction < 0 ? -1 : 1;
 	if (o->direction == 0)
 		md->sign = direction(md->x, md->nt, md->k, md->n);
+	md->lnb_lim = slope_bound(md);
 }
 
 static void model_clear(struct model *md)
@@ -479,6 +536,24 @@ static int postcheck(const struct model *md, const double *th, struct fit_result
 					       : "falls from ceiling to chance", fmin(xa, xb), fmax(xa, xb),
 			 k > j + 1 ? "one level" : "no level");
 		return -1;
+	}
+	/* On the steepness bound the data did not limit the slope; that is only a fit when some level
+	 * was caught mid-transition: its Wilson 95% interval lies above chance and below 1. */
+	if (at_bound(md, th[1])) {
+		size_t mid = 0;
+		for (size_t i = 0; i < md->n; i++) {
+			double l, u;
+			if (!stats_ci(STATS_CI_WILSON, md->k[i], md->nt[i], 0.95, &l, &u) &&
+			    l > md->gamma && u < 1)
+				mid++;
+		}
+		if (mid == 0) {
+			snprintf(r->reason, sizeof r->reason,
+				 "proportion correct jumps between two levels with no level caught "
+				 "between chance and ceiling: the slope cannot be estimated (test more "
+				 "levels in that range, or fix the lapse rate)");
+			return -1;
+		}
 	}
 	bool far = md->shape == PSYFN_WEIBULL ? (a > hi * 1e3) : (a > hi + 10 * (hi - lo) ||
 								   a < lo - 10 * (hi - lo));
@@ -660,9 +735,12 @@ int fit_run(const struct fit_point *pts, size_t npts, const struct fit_opts *o,
 			 "the maximum-likelihood search did not converge");
 		goto out;
 	}
+	th[1] = lnb(&md, th[1]);   /* onto the bound (drops the wall term below) */
+	val = nll(&md, th, NULL);
 	if (postcheck(&md, th, r, false) < 0)
 		goto out;
 	fill_psyfn(&md, th, &r->f);
+	r->slope_bounded = at_bound(&md, th[1]);
 	r->loglik = -val;
 	double dev = 0;
 	for (size_t i = 0; i < md.n; i++) {

@@ -88,6 +88,14 @@ done
 tm_keys 2
 expect_screen "results: the curve's axis" "level"
 expect_screen "results: chance marked on the curve" "chance"
+# One fit in the program: the curve shows the same fit (or the same refusal) as `tachist report`.
+rep=$("$TACHIST" report --db "$DB" --boot 0 2>/dev/null | sed -n 's/^  subject S01, block main: //p' | head -n 1)
+case "$rep" in
+  "no fit: "*) want=$(printf '%s' "$rep" | cut -c1-60) ;;
+  *) want="$(printf '%s' "$rep" | cut -d' ' -f1) fit" ;;
+esac
+check "report has a fit line for the main block ($rep)" test -n "$rep"
+expect_screen "results: the curve shows the report's fit ($want)" "$want"
 tm_keys 3
 expect_screen "results: the confusion matrix" "rows: true category, columns: answer"
 expect_screen "results: the shade legend" "75% or more"
