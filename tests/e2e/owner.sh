@@ -16,32 +16,7 @@ wait_for() {
   return 1
 }
 RIG=$A/rig.ini
-cat >"$WORK/p.ini" <<PROTO
-[experiment]
-name = owner
-list = $A/stimuli.csv
-[choices]
-ring = s
-bar = d
-cross = f
-chevron = j
-wedge = k
-lattice = l
-[timing]
-fixation_ms = 100
-blank_ms = 50
-stimulus_ms = 50
-mask_ms = 50
-response_ms = 1500
-feedback_ms = 100
-iti_ms = 100
-[display]
-size_deg = 2
-background = 128
-mask = noise
-[block test]
-select = exemplar=2
-PROTO
+mkproto "$WORK/p.ini" "$A/stimuli.csv" 2
 DB=$WORK/o.db
 ARGS="--rig $RIG --headless --observer $MODEL --seed 5"
 

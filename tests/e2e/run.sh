@@ -20,41 +20,6 @@ corner = top-left
 size_px = 20
 RIG
 
-# mkproto FILE LIST SIZE_DEG: 6 practice trials (exemplar 1, clean) and 24 test trials (exemplar 2)
-mkproto() {
-cat >"$1" <<PROTO
-[experiment]
-name = e2e
-list = $2
-[choices]
-ring = s
-bar = d
-cross = f
-chevron = j
-wedge = k
-lattice = l
-[timing]
-fixation_ms = 100
-blank_ms = 50
-stimulus_ms = 50
-mask_ms = 50
-response_ms = 1500
-feedback_ms = 100
-iti_ms = 100
-[display]
-size_deg = $3
-background = 128
-fixation_deg = 0.3
-mask = noise
-feedback = mark
-[block warm]
-select = level=0 & exemplar=1
-practice = yes
-[block test]
-select = exemplar=2
-repeat_faults = yes
-PROTO
-}
 P=$WORK/p.ini
 mkproto "$P" "$A/stimuli.csv" 2
 
