@@ -37,7 +37,11 @@ DEB_PKGS := gcc make pkg-config libncurses-dev libsdl2-dev libsdl2-image-dev lib
             libsdl2-ttf-dev libfontconfig-dev fonts-dejavu-core libevdev-dev libpq-dev \
             postgresql mandoc
 
-.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets
+PREFIX   ?= /usr/local
+BINDIR   ?= $(PREFIX)/bin
+MANDIR   ?= $(PREFIX)/share/man
+
+.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets man install uninstall
 all: $(BUILD)/tachist
 
 $(BUILD)/tachist: $(OBJ)
@@ -103,6 +107,20 @@ fuzz:
 demo-assets:
 	@[ -f assets-demo/stimuli.csv ] || { $(MAKE) --no-print-directory $(BUILD)/tools/make_demo_assets && \
 	  $(BUILD)/tools/make_demo_assets assets-demo; }
+
+# The manual page is written by the program from its command and option tables.
+man: $(BUILD)/tachist.1
+$(BUILD)/tachist.1: $(BUILD)/tachist
+	./$(BUILD)/tachist --man >$@
+
+# The binary and tachist(1), nothing else; DESTDIR and PREFIX (or BINDIR, MANDIR) as usual.
+install: $(BUILD)/tachist $(BUILD)/tachist.1
+	install -d "$(DESTDIR)$(BINDIR)" "$(DESTDIR)$(MANDIR)/man1"
+	install -m 755 $(BUILD)/tachist "$(DESTDIR)$(BINDIR)/tachist"
+	install -m 644 $(BUILD)/tachist.1 "$(DESTDIR)$(MANDIR)/man1/tachist.1"
+
+uninstall:
+	rm -f "$(DESTDIR)$(BINDIR)/tachist" "$(DESTDIR)$(MANDIR)/man1/tachist.1"
 
 clean:
 	rm -rf build

@@ -7,6 +7,7 @@
 #include <stdio.h>
 
 #include "diag.h"
+#include "opts.h"
 
 /* Exit codes (DESIGN.md): 0 success, 1 problems found or the work failed, 2 usage error. */
 enum { EXIT_OK = 0, EXIT_PROBLEMS = 1, EXIT_USAGE = 2 };
@@ -14,9 +15,16 @@ enum { EXIT_OK = 0, EXIT_PROBLEMS = 1, EXIT_USAGE = 2 };
 struct cmd {
 	const char *name;
 	const char *summary;   /* one line for `tachist --help` */
-	const char *usage;     /* full text for `tachist NAME --help` */
+	const char *usage;     /* the synopsis: "tachist NAME ..." lines, each ending in \n */
+	const char *about;     /* a few sentences for --help and the manual page; may be NULL */
+	const struct opts_row *opts;   /* the command's option table (beside its function) */
 	int (*fn)(int argc, char **argv);   /* argv[0] is the subcommand name */
 };
+
+/* The option tables, one per command, each in its app/cmd/cmd_<name>.c. */
+extern const struct opts_row cmd_console_opts[], cmd_check_opts[], cmd_run_opts[],
+	cmd_timing_opts[], cmd_sessions_opts[], cmd_report_opts[], cmd_export_opts[], cmd_fit_opts[],
+	cmd_calc_opts[];
 
 int cmd_console(int argc, char **argv);
 int cmd_check(int argc, char **argv);
@@ -31,16 +39,24 @@ int cmd_stimuli(int argc, char **argv);
 int cmd_merge(int argc, char **argv);
 int cmd_demo(int argc, char **argv);
 
-/* Shared by `run` and `demo` (app/cmd/cmd_run.c): parse the session options from ARGV[FIRST..]
- * into O (*RIG_ARG gets --rig), returning 0 or -1 after a message; run one session and print its
- * block summaries, returning the exit code; ID_OUT (may be NULL) gets the session's ID, "" when
- * none began. */
+/* Shared by `run` and `demo` (app/cmd/cmd_run.c; both take the options of cmd_run_opts): parse
+ * ARGV into O (*RIG_ARG gets --rig, *PROTOCOL the one argument that is not an option; PROTOCOL NULL
+ * when none is allowed), returning 0 or EXIT_USAGE after the message; run one session and print
+ * its block summaries, returning the exit code; ID_OUT (may be NULL) gets the session's ID, ""
+ * when none began. */
 struct run_options;
-int cmd_run_options(int argc, char **argv, int first, struct run_options *o, char **rig_arg);
+int cmd_run_options(const char *cmd, int argc, char **argv, struct run_options *o,
+		    const char **rig_arg, const char **protocol);
 int cmd_run_session(const struct run_options *o, char id_out[37]);
 
 /* The table row for NAME, or NULL. */
 const struct cmd *cmd_find(const char *name);
+/* The whole command table: *N gets its length. */
+const struct cmd *cmd_table(size_t *n);
+/* Prints NAME's --help (usage, about, the option table) to OUT. */
+void cmd_print_help(const struct cmd *c, FILE *out);
+/* Prints the manual page tachist(1), in man(7) markup, made from the command table. */
+void cmd_print_man(FILE *out);
 /* True when ARGV holds --help or -h; the caller then prints its usage and returns 0. */
 bool cmd_wants_help(int argc, char **argv);
 /* Prints the usage text of NAME to OUT. */

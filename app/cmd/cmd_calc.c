@@ -236,58 +236,78 @@ static void print_json(const struct calc_out *o)
 	cJSON_Delete(j);
 }
 
+/* Every option of every calculation; each row of calcs[] names the ones it takes. */
+enum { O_SIZE, O_DEG, O_DISTANCE, O_RIG, O_MS, O_HZ, O_M, O_PC, O_K, O_N, O_METHOD, O_LEVEL,
+       O_JSON };
+const struct opts_row cmd_calc_opts[] = {
+	[O_SIZE] = {"size", "CM", "angle: the size on the screen in cm"},
+	[O_DEG] = {"deg", "D", "size, pixels: the visual angle in degrees"},
+	[O_DISTANCE] = {"distance", "CM", "angle, size: the viewing distance in cm"},
+	[O_RIG] = {"rig", "FILE", "pixels: the rig profile (default $XDG_CONFIG_HOME/tachist/rig.ini)"},
+	[O_MS] = {"ms", "MS", "frames: the duration in ms"},
+	[O_HZ] = {"hz", "HZ", "frames: the refresh rate in Hz"},
+	[O_M] = {"m", "N", "dprime: the number of choices (m-AFC)"},
+	[O_PC] = {"pc", "P", "dprime: the proportion correct"},
+	[O_K] = {"k", "K", "ci: the number of successes"},
+	[O_N] = {"n", "N", "ci: the number of trials; dprime: the trials behind --pc, so 0 and 1 get the 1/(2N) correction"},
+	[O_METHOD] = {"method", "METHOD", "ci: wilson or exact (default wilson)"},
+	[O_LEVEL] = {"level", "L", "ci: the confidence level (default 0.95)"},
+	[O_JSON] = {"json", NULL, "one JSON object on standard output"},
+	OPTS_END,
+};
+
 int cmd_calc(int argc, char **argv)
 {
-	if (argc < 2) {
-		cmd_print_usage("calc", stderr);
-		return EXIT_USAGE;
-	}
 	const struct calc *c = NULL;
-	for (size_t i = 0; i < sizeof calcs / sizeof calcs[0]; i++)
-		if (!strcmp(calcs[i].name, argv[1]))
-			c = &calcs[i];
-	if (!c) {
-		fprintf(stderr, "tachist calc: unknown calculation '%s'\n", argv[1]);
-		cmd_print_usage("calc", stderr);
-		return EXIT_USAGE;
-	}
 	struct calc_args a;
 	memset(&a, 0, sizeof a);
 	int json = 0;
-	for (int i = 2; i < argc; i++) {
-		if (!strcmp(argv[i], "--json")) {
+	struct opts p;
+	opts_begin(&p, "calc", cmd_calc_opts, argc, argv);
+	const char *v;
+	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
+		if (k == OPTS_USAGE)
+			return EXIT_USAGE;
+		if (k == OPTS_ARG) {
+			if (c)
+				return opts_usage("calc", "unexpected argument '%s'", v);
+			for (size_t i = 0; i < sizeof calcs / sizeof calcs[0]; i++)
+				if (!strcmp(calcs[i].name, v))
+					c = &calcs[i];
+			if (!c)
+				return opts_usage("calc", "unknown calculation '%s'", v);
+			continue;
+		}
+		if (k == O_JSON) {
 			json = 1;
 			continue;
 		}
-		size_t k = 0;
-		for (; c->opts[k]; k++)
-			if (!strncmp(argv[i], "--", 2) && !strcmp(argv[i] + 2, c->opts[k]))
-				break;
-		if (!c->opts[k]) {
-			fprintf(stderr, "tachist calc %s: unknown option '%s'\n", c->name, argv[i]);
-			return EXIT_USAGE;
-		}
-		if (i + 1 >= argc) {
-			fprintf(stderr, "tachist calc %s: %s needs a value\n", c->name, argv[i]);
-			return EXIT_USAGE;
-		}
-		a.text[k] = argv[++i];
-		if (!(c->text_opts & (1u << k)) && cmd_parse_double(a.text[k], &a.num[k])) {
-			fprintf(stderr, "tachist calc %s: --%s %s is not a number\n", c->name, c->opts[k],
-				a.text[k]);
-			return EXIT_USAGE;
-		}
+		if (!c)
+			return opts_usage("calc", "name the calculation before its options");
+		const char *name = cmd_calc_opts[k].name;
+		size_t i = 0;
+		while (c->opts[i] && strcmp(c->opts[i], name))
+			i++;
+		if (!c->opts[i])
+			return opts_usage("calc", "calc %s takes no --%s", c->name, name);
+		a.text[i] = v;
+		if (!(c->text_opts & (1u << i)) && cmd_parse_double(v, &a.num[i]))
+			return opts_usage("calc", "--%s %s is not a number", name, v);
 	}
+	if (!c)
+		return opts_usage("calc", "name the calculation");
 	for (size_t k = 0; c->opts[k]; k++)
-		if ((c->required & (1u << k)) && !a.text[k]) {
-			fprintf(stderr, "tachist calc %s: --%s is required\n", c->name, c->opts[k]);
-			return EXIT_USAGE;
-		}
+		if ((c->required & (1u << k)) && !a.text[k])
+			return opts_usage("calc", "calc %s needs --%s", c->name, c->opts[k]);
 	struct calc_out o;
 	memset(&o, 0, sizeof o);
 	int rc = c->fn(&a, &o);
-	if (rc)
-		return rc > 0 ? EXIT_PROBLEMS : EXIT_USAGE;
+	if (rc > 0)
+		return EXIT_PROBLEMS;
+	if (rc < 0) {
+		opts_usage_hint("calc");
+		return EXIT_USAGE;
+	}
 	if (json)
 		print_json(&o);
 	else

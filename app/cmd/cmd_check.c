@@ -338,34 +338,33 @@ static cJSON *json_doc(const struct protocol *p, const struct rig *r, const stru
 	return j;
 }
 
+enum { O_RIG, O_JSON };
+const struct opts_row cmd_check_opts[] = {
+	[O_RIG] = {"rig", "FILE", "the rig profile (default $XDG_CONFIG_HOME/tachist/rig.ini)"},
+	[O_JSON] = {"json", NULL, "the plan and every problem as one JSON document on standard output"},
+	OPTS_END,
+};
+
 int cmd_check(int argc, char **argv)
 {
-	const char *proto_path = NULL, *rig_opt = NULL;
+	const char *proto_path = NULL, *rig_opt = NULL, *v;
 	int json = 0;
-	for (int i = 1; i < argc; i++) {
-		if (!strcmp(argv[i], "--json")) {
-			json = 1;
-		} else if (!strcmp(argv[i], "--rig")) {
-			if (++i >= argc) {
-				fprintf(stderr, "tachist check: --rig needs a file\n");
-				return EXIT_USAGE;
-			}
-			rig_opt = argv[i];
-		} else if (argv[i][0] == '-' && argv[i][1]) {
-			fprintf(stderr, "tachist check: unknown option '%s'\n", argv[i]);
-			cmd_print_usage("check", stderr);
-			return EXIT_USAGE;
-		} else if (!proto_path) {
-			proto_path = argv[i];
-		} else {
-			fprintf(stderr, "tachist check: one protocol at a time ('%s')\n", argv[i]);
-			return EXIT_USAGE;
+	struct opts o;
+	opts_begin(&o, "check", cmd_check_opts, argc, argv);
+	for (int k; (k = opts_next(&o, &v)) != OPTS_DONE;) {
+		switch (k) {
+		case O_RIG: rig_opt = v; break;
+		case O_JSON: json = 1; break;
+		case OPTS_ARG:
+			if (proto_path)
+				return opts_usage("check", "one protocol at a time ('%s')", v);
+			proto_path = v;
+			break;
+		default: return EXIT_USAGE;
 		}
 	}
-	if (!proto_path) {
-		cmd_print_usage("check", stderr);
-		return EXIT_USAGE;
-	}
+	if (!proto_path)
+		return opts_usage("check", "name the protocol file");
 	struct diag_list d;
 	diag_init(&d);
 	struct protocol p;

@@ -7,24 +7,28 @@
 #include "cmd.h"
 #include "console.h"
 
+enum { O_DB, O_RIG };
+const struct opts_row cmd_console_opts[] = {
+	[O_DB] = {"db", "FILE", "the database sessions go to (default tachist.db)"},
+	[O_RIG] = {"rig", "FILE", "the rig profile (default $XDG_CONFIG_HOME/tachist/rig.ini)"},
+	OPTS_END,
+};
+
 int cmd_console(int argc, char **argv)
 {
-	const char *db = "tachist.db", *rig = NULL;
-	for (int i = 1; i < argc; i++) {
-		if (!strcmp(argv[i], "--db") && i + 1 < argc) {
-			db = argv[++i];
-		} else if (!strcmp(argv[i], "--rig") && i + 1 < argc) {
-			rig = argv[++i];
-		} else {
-			fprintf(stderr, "tachist console: unexpected argument '%s'\n", argv[i]);
-			cmd_print_usage("console", stderr);
-			return EXIT_USAGE;
+	const char *db = "tachist.db", *rig = NULL, *v;
+	struct opts p;
+	opts_begin(&p, "console", cmd_console_opts, argc, argv);
+	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
+		switch (k) {
+		case O_DB: db = v; break;
+		case O_RIG: rig = v; break;
+		case OPTS_ARG: return opts_usage("console", "unexpected argument '%s'", v);
+		default: return EXIT_USAGE;
 		}
 	}
-	if (!*db) {
-		fprintf(stderr, "tachist console: --db needs a file name\n");
-		return EXIT_USAGE;
-	}
+	if (!*db)
+		return opts_usage("console", "--db needs a file name");
 	/* The demo-rig fallback is shown on the console's first screen, not printed here. */
 	bool demo = false;
 	char *rig_path = cmd_rig_path_find(rig, &demo);

@@ -67,11 +67,9 @@ static void print_levels(const char *db, const char *id)
 int cmd_demo(int argc, char **argv)
 {
 	struct run_options o = {.db_path = "tachist-demo.db", .subject = "demo1"};
-	char *rig_arg = NULL;
-	if (cmd_run_options(argc, argv, 1, &o, &rig_arg)) {
-		cmd_print_usage("demo", stderr);
+	const char *rig_arg = NULL;
+	if (cmd_run_options("demo", argc, argv, &o, &rig_arg, NULL))
 		return EXIT_USAGE;
-	}
 	const char *dpy = getenv("DISPLAY"), *way = getenv("WAYLAND_DISPLAY");
 	bool display = (dpy && *dpy) || (way && *way);
 	if (!display)

@@ -12,9 +12,7 @@
 
 static int usage(const char *msg)
 {
-	fprintf(stderr, "tachist export: %s\n", msg);
-	cmd_print_usage("export", stderr);
-	return EXIT_USAGE;
+	return opts_usage("export", "%s", msg);
 }
 
 static int fail(char *err)
@@ -24,28 +22,31 @@ static int fail(char *err)
 	return EXIT_PROBLEMS;
 }
 
+enum { O_DB, O_FORMAT, O_SESSION, O_SUBJECT, O_OUT };
+const struct opts_row cmd_export_opts[] = {
+	[O_DB] = {"db", "FILE", "the database to read (default tachist.db)"},
+	[O_FORMAT] = {"format", "FORMAT", "csv, tsv, json or bids (required)"},
+	[O_SESSION] = {"session", "ID", "only this session (its ID or a unique start of it)"},
+	[O_SUBJECT] = {"subject", "ID", "only this subject's sessions"},
+	[O_OUT] = {"out", "PATH", "the file to write, - for standard output, a folder for bids (required)"},
+	OPTS_END,
+};
+
 int cmd_export(int argc, char **argv)
 {
 	const char *db = "tachist.db", *format = NULL, *session = NULL, *subject = NULL;
-	const char *out = NULL;
-	for (int i = 1; i < argc; i++) {
-		const char *a = argv[i];
-		bool has = i + 1 < argc;
-		if (!strcmp(a, "--db") && has)
-			db = argv[++i];
-		else if (!strcmp(a, "--format") && has)
-			format = argv[++i];
-		else if (!strcmp(a, "--session") && has)
-			session = argv[++i];
-		else if (!strcmp(a, "--subject") && has)
-			subject = argv[++i];
-		else if (!strcmp(a, "--out") && has)
-			out = argv[++i];
-		else {
-			char *m = xasprintf("unexpected argument '%s'", a);
-			int rc = usage(m);
-			free(m);
-			return rc;
+	const char *out = NULL, *v;
+	struct opts p;
+	opts_begin(&p, "export", cmd_export_opts, argc, argv);
+	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
+		switch (k) {
+		case O_DB: db = v; break;
+		case O_FORMAT: format = v; break;
+		case O_SESSION: session = v; break;
+		case O_SUBJECT: subject = v; break;
+		case O_OUT: out = v; break;
+		case OPTS_ARG: return opts_usage("export", "unexpected argument '%s'", v);
+		default: return EXIT_USAGE;
 		}
 	}
 	enum export_format f;

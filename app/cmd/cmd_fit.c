@@ -115,6 +115,18 @@ static void print_text(const struct fit_result *r, const struct fit_opts *o, con
 		       r->nboot_failed, ci ? "" : "; too many failures for intervals");
 }
 
+enum { O_M, O_SHAPE, O_LAPSE, O_PC, O_BOOT, O_SEED, O_JSON };
+const struct opts_row cmd_fit_opts[] = {
+	[O_M] = {"m", "N", "the number of choices (required); the guess rate is 1/N"},
+	[O_SHAPE] = {"shape", "SHAPE", "weibull, logistic or normal (default weibull)"},
+	[O_LAPSE] = {"lapse", "LAPSE", "free (fitted), 0, or a fixed rate in [0, 1) (default free)"},
+	[O_PC] = {"pc", "P", "the threshold's proportion correct (default halfway from 1/N to 1)"},
+	[O_BOOT] = {"boot", "N", "parametric bootstrap samples for the intervals (default 1000, 0 for none)"},
+	[O_SEED] = {"seed", "N", "the bootstrap's seed, for the same intervals again"},
+	[O_JSON] = {"json", NULL, "one JSON document on standard output"},
+	OPTS_END,
+};
+
 int cmd_fit(int argc, char **argv)
 {
 	const char *path = NULL;
@@ -124,63 +136,47 @@ int cmd_fit(int argc, char **argv)
 	fit_opts_default(&o, 2);
 	const char *shape = NULL, *lapse = NULL;
 	double pc = NAN;
-	for (int i = 1; i < argc; i++) {
-		const char *a = argv[i];
-		const char *v = i + 1 < argc ? argv[i + 1] : NULL;
+	struct opts p;
+	opts_begin(&p, "fit", cmd_fit_opts, argc, argv);
+	const char *v;
+	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
 		unsigned long long u;
-		if (!strcmp(a, "--json")) {
-			json = true;
-		} else if (!strcmp(a, "--m") && v) {
-			if (cmd_parse_u64(v, &u) < 0 || u < 2 || u > 1000) {
-				fprintf(stderr, "tachist fit: --m needs a whole number of choices, 2 or more "
-					"(got '%s')\n", v);
-				return EXIT_USAGE;
-			}
+		switch (k) {
+		case O_JSON: json = true; break;
+		case O_M:
+			if (cmd_parse_u64(v, &u) < 0 || u < 2 || u > 1000)
+				return opts_usage("fit", "--m needs a whole number of choices, 2 or more "
+						  "(got '%s')", v);
 			m = (long)u;
-			i++;
-		} else if (!strcmp(a, "--shape") && v) {
-			shape = v;
-			i++;
-		} else if (!strcmp(a, "--lapse") && v) {
-			lapse = v;
-			i++;
-		} else if (!strcmp(a, "--pc") && v) {
-			if (cmd_parse_double(v, &pc) < 0) {
-				fprintf(stderr, "tachist fit: --pc needs a proportion (got '%s')\n", v);
-				return EXIT_USAGE;
-			}
-			i++;
-		} else if (!strcmp(a, "--boot") && v) {
-			if (cmd_parse_u64(v, &u) < 0 || u > 1000000) {
-				fprintf(stderr, "tachist fit: --boot needs a number of samples (got '%s')\n", v);
-				return EXIT_USAGE;
-			}
+			break;
+		case O_SHAPE: shape = v; break;
+		case O_LAPSE: lapse = v; break;
+		case O_PC:
+			if (cmd_parse_double(v, &pc) < 0)
+				return opts_usage("fit", "--pc needs a proportion (got '%s')", v);
+			break;
+		case O_BOOT:
+			if (cmd_parse_u64(v, &u) < 0 || u > 1000000)
+				return opts_usage("fit", "--boot needs a number of samples (got '%s')", v);
 			o.nboot = (int)u;
-			i++;
-		} else if (!strcmp(a, "--seed") && v) {
-			if (cmd_parse_u64(v, &u) < 0) {
-				fprintf(stderr, "tachist fit: --seed needs a whole number (got '%s')\n", v);
-				return EXIT_USAGE;
-			}
+			break;
+		case O_SEED:
+			if (cmd_parse_u64(v, &u) < 0)
+				return opts_usage("fit", "--seed needs a whole number (got '%s')", v);
 			o.seed = u;
-			i++;
-		} else if (a[0] == '-' && a[1]) {
-			fprintf(stderr, "tachist fit: unknown or incomplete option '%s'\n", a);
-			cmd_print_usage("fit", stderr);
-			return EXIT_USAGE;
-		} else if (!path) {
-			path = a;
-		} else {
-			fprintf(stderr, "tachist fit: one CSV file only ('%s' is extra)\n", a);
-			return EXIT_USAGE;
+			break;
+		case OPTS_ARG:
+			if (path)
+				return opts_usage("fit", "one CSV file only ('%s' is extra)", v);
+			path = v;
+			break;
+		default: return EXIT_USAGE;
 		}
 	}
-	if (!path || m == 0) {
-		fprintf(stderr, "tachist fit: %s\n", !path ? "name the CSV file" : "--m N is required "
-			"(the number of choices; the guess rate is 1/N)");
-		cmd_print_usage("fit", stderr);
-		return EXIT_USAGE;
-	}
+	if (!path)
+		return opts_usage("fit", "name the CSV file");
+	if (m == 0)
+		return opts_usage("fit", "--m N is required (the number of choices; the guess rate is 1/N)");
 	int nboot = o.nboot;
 	uint64_t seed = o.seed;
 	fit_opts_default(&o, (int)m);

@@ -3,8 +3,7 @@
  *
  * Strings from the store's iterator are borrowed per row, so every text the analysis keeps is
  * interned here once (a small open-addressing set): memory grows with the number of distinct
- * texts, not with trials × texts. Extra options beyond DESIGN.md's contract: --by COLS (label
- * columns that split conditions), --shape, --lapse, --pc, --boot, --seed, --ci, --no-fit. */
+ * texts, not with trials × texts. The options are the table cmd_report_opts below. */
 #include <math.h>
 #include <stdint.h>
 #include <stdlib.h>
@@ -90,6 +89,27 @@ static int report_threads(void)
 	return n < 1 ? 1 : n > 8 ? 8 : (int)n;
 }
 
+enum { O_DB, O_SESSION, O_SUBJECT, O_ALL, O_BY, O_SHAPE, O_LAPSE, O_PC, O_BOOT, O_SEED, O_CI,
+       O_NOFIT, O_JSON, O_PLOTS };
+const struct opts_row cmd_report_opts[] = {
+	[O_DB] = {"db", "FILE", "the database to read (default tachist.db)"},
+	[O_SESSION] = {"session", "ID", "only this session"},
+	[O_SUBJECT] = {"subject", "ID", "only this subject's sessions"},
+	[O_ALL] = {"all", NULL, "every session in the database (the default)"},
+	[O_BY] = {"by", "COLUMNS", "label columns of the stimulus list that split conditions (a,b)"},
+	[O_SHAPE] = {"shape", "SHAPE", "weibull, logistic or normal (default chosen from the data)"},
+	[O_LAPSE] = {"lapse", "LAPSE", "free (fitted), 0, or a fixed rate in [0, 1) (default free)"},
+	[O_PC] = {"pc", "P", "the threshold's proportion correct (default halfway from 1/m to 1)"},
+	[O_BOOT] = {"boot", "N", "parametric bootstrap samples for the fit's intervals"},
+	[O_SEED] = {"seed", "N", "the bootstrap's seed, for the same intervals again"},
+	[O_CI] = {"ci", "METHOD", "wilson or exact binomial intervals for accuracy (default wilson)"},
+	[O_NOFIT] = {"no-fit", NULL, "no psychometric fits"},
+	[O_JSON] = {"json", NULL, "one JSON document on standard output"},
+	[O_PLOTS] = {"plots", "DIR", "also write SVG figures and index.html into DIR"},
+	OPTS_END,
+};
+
+/* Parses the options into O. Returns 0, or EXIT_USAGE after the message. */
 static int parse_args(int argc, char **argv, struct ropts *o)
 {
 	memset(o, 0, sizeof *o);
@@ -97,77 +117,55 @@ static int parse_args(int argc, char **argv, struct ropts *o)
 	o->pc = NAN;
 	o->boot = -1;
 	o->ci = STATS_CI_WILSON;
-	for (int i = 1; i < argc; i++) {
-		const char *a = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
+	struct opts p;
+	opts_begin(&p, "report", cmd_report_opts, argc, argv);
+	const char *v;
+	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
 		unsigned long long u;
-		if (!strcmp(a, "--json"))
-			o->json = true;
-		else if (!strcmp(a, "--all"))
-			o->all = true;
-		else if (!strcmp(a, "--no-fit"))
-			o->nofit = true;
-		else if (!strcmp(a, "--db") && v)
-			o->db = argv[++i];
-		else if (!strcmp(a, "--session") && v)
-			o->session = argv[++i];
-		else if (!strcmp(a, "--subject") && v)
-			o->subject = argv[++i];
-		else if (!strcmp(a, "--plots") && v)
-			o->plots = argv[++i];
-		else if (!strcmp(a, "--by") && v)
-			o->by = argv[++i];
-		else if (!strcmp(a, "--shape") && v)
-			o->shape = argv[++i];
-		else if (!strcmp(a, "--lapse") && v)
-			o->lapse = argv[++i];
-		else if (!strcmp(a, "--ci") && v) {
-			if (stats_ci_method_parse(v, &o->ci) < 0) {
-				fprintf(stderr, "tachist report: --ci is wilson or exact (got '%s')\n", v);
-				return -1;
-			}
-			i++;
-		} else if (!strcmp(a, "--pc") && v) {
-			if (cmd_parse_double(v, &o->pc) < 0 || !(o->pc > 0 && o->pc < 1)) {
-				fprintf(stderr, "tachist report: --pc needs a proportion in (0, 1) (got '%s')\n", v);
-				return -1;
-			}
-			i++;
-		} else if (!strcmp(a, "--boot") && v) {
-			if (cmd_parse_u64(v, &u) < 0 || u > 1000000) {
-				fprintf(stderr, "tachist report: --boot needs a number of samples (got '%s')\n", v);
-				return -1;
-			}
+		switch (k) {
+		case O_JSON: o->json = true; break;
+		case O_ALL: o->all = true; break;
+		case O_NOFIT: o->nofit = true; break;
+		case O_DB: o->db = v; break;
+		case O_SESSION: o->session = v; break;
+		case O_SUBJECT: o->subject = v; break;
+		case O_PLOTS: o->plots = v; break;
+		case O_BY: o->by = v; break;
+		case O_SHAPE: o->shape = v; break;
+		case O_LAPSE: o->lapse = v; break;
+		case O_CI:
+			if (stats_ci_method_parse(v, &o->ci) < 0)
+				return opts_usage("report", "--ci is wilson or exact (got '%s')", v);
+			break;
+		case O_PC:
+			if (cmd_parse_double(v, &o->pc) < 0 || !(o->pc > 0 && o->pc < 1))
+				return opts_usage("report", "--pc needs a proportion in (0, 1) (got '%s')", v);
+			break;
+		case O_BOOT:
+			if (cmd_parse_u64(v, &u) < 0 || u > 1000000)
+				return opts_usage("report", "--boot needs a number of samples (got '%s')", v);
 			o->boot = (long)u;
-			i++;
-		} else if (!strcmp(a, "--seed") && v) {
-			if (cmd_parse_u64(v, &o->seed) < 0) {
-				fprintf(stderr, "tachist report: --seed needs a whole number (got '%s')\n", v);
-				return -1;
-			}
+			break;
+		case O_SEED:
+			if (cmd_parse_u64(v, &o->seed) < 0)
+				return opts_usage("report", "--seed needs a whole number (got '%s')", v);
 			o->seed_set = true;
-			i++;
-		} else {
-			fprintf(stderr, "tachist report: unknown or incomplete option '%s'\n", a);
-			return -1;
+			break;
+		case OPTS_ARG: return opts_usage("report", "unexpected argument '%s'", v);
+		default: return EXIT_USAGE;
 		}
 	}
-	if ((o->session != NULL) + (o->subject != NULL) + o->all > 1) {
-		fprintf(stderr, "tachist report: choose one of --session, --subject and --all\n");
-		return -1;
-	}
+	if ((o->session != NULL) + (o->subject != NULL) + o->all > 1)
+		return opts_usage("report", "choose one of --session, --subject and --all");
 	enum psyfn_shape sh;
-	if (o->shape && psyfn_shape_parse(o->shape, &sh) < 0) {
-		fprintf(stderr, "tachist report: --shape is weibull, logistic or normal (got '%s')\n",
-			o->shape);
-		return -1;
-	}
+	if (o->shape && psyfn_shape_parse(o->shape, &sh) < 0)
+		return opts_usage("report", "--shape is weibull, logistic or normal (got '%s')",
+				  o->shape);
 	struct fit_opts fo;
 	fit_opts_default(&fo, 2);
-	if (o->lapse && fit_lapse_parse(o->lapse, &fo) < 0) {
-		fprintf(stderr, "tachist report: --lapse is free, 0 or a rate in [0, 1) (got '%s')\n",
-			o->lapse);
-		return -1;
-	}
+	if (o->lapse && fit_lapse_parse(o->lapse, &fo) < 0)
+		return opts_usage("report", "--lapse is free, 0 or a rate in [0, 1) (got '%s')",
+				  o->lapse);
 	return 0;
 }
 
@@ -875,10 +873,8 @@ static void json_staircases(cJSON *j, const struct adapt_history *h)
 int cmd_report(int argc, char **argv)
 {
 	struct ropts o;
-	if (parse_args(argc, argv, &o) < 0) {
-		cmd_print_usage("report", stderr);
+	if (parse_args(argc, argv, &o))
 		return EXIT_USAGE;
-	}
 	struct store *s;
 	char *err = NULL;
 	if (store_open_existing(o.db, &s, &err) < 0) {

@@ -89,79 +89,78 @@ int cmd_run_session(const struct run_options *o, char id_out[37])
 	return code;
 }
 
-/* Parses the options `run` and `demo` share. Returns 0, or -1 after a message on stderr. */
-int cmd_run_options(int argc, char **argv, int first, struct run_options *o, char **rig_arg)
+enum { O_SUBJECT, O_DB, O_RIG, O_OBSERVER, O_HEADLESS, O_PACE, O_INJECT_DROPS, O_SEED, O_RESUME,
+       O_WINDOW, O_SCREENSHOTS };
+const struct opts_row cmd_run_opts[] = {
+	[O_SUBJECT] = {"subject", "ID", "the subject's pseudonymous ID, letters and digits"},
+	[O_DB] = {"db", "FILE", "the database (run: tachist.db, demo: tachist-demo.db)"},
+	[O_RIG] = {"rig", "FILE", "the rig profile (default $XDG_CONFIG_HOME/tachist/rig.ini)"},
+	[O_OBSERVER] = {"observer", "WHO", "keyboard, or model:KEY=VALUE,... for the model observer"},
+	[O_HEADLESS] = {"headless", NULL, "no display: a virtual clock, timing recorded as simulated"},
+	[O_PACE] = {"pace", NULL, "headless: keep real time, to watch or interrupt"},
+	[O_INJECT_DROPS] = {"inject-drops", "RATE", "headless: drop frames at this rate, 0 to 1 (tests)"},
+	[O_SEED] = {"seed", "N", "the plan's seed, 0 to 4294967295 (default a fresh one)"},
+	[O_RESUME] = {"resume", "SESSION", "continue this interrupted session at its first trial not stored"},
+	[O_WINDOW] = {"window", NULL, "a window instead of the full screen"},
+	[O_SCREENSHOTS] = {"screenshots", "DIR", "save PNGs of the first trial's frames into DIR"},
+	OPTS_END,
+};
+
+int cmd_run_options(const char *cmd, int argc, char **argv, struct run_options *o,
+		    const char **rig_arg, const char **protocol)
 {
-	for (int i = first; i < argc; i++) {
-		const char *a = argv[i];
-		const char *v = i + 1 < argc ? argv[i + 1] : NULL;
-		bool needs = true;
-		if (!strcmp(a, "--subject") && v)
-			o->subject = v;
-		else if (!strcmp(a, "--db") && v)
-			o->db_path = v;
-		else if (!strcmp(a, "--rig") && v)
-			*rig_arg = (char *)v;
-		else if (!strcmp(a, "--observer") && v)
-			o->observer = v;
-		else if (!strcmp(a, "--resume") && v)
-			o->resume_id = v;
-		else if (!strcmp(a, "--screenshots") && v)
-			o->screenshot_dir = v;
-		else if (!strcmp(a, "--seed") && v) {
-			unsigned long long x;
-			if (cmd_parse_u64(v, &x) || x > 4294967295ull) {
-				fprintf(stderr, "tachist: --seed takes a whole number from 0 to 4294967295\n");
-				return -1;
-			}
+	struct opts p;
+	opts_begin(&p, cmd, cmd_run_opts, argc, argv);
+	const char *v;
+	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
+		unsigned long long x;
+		switch (k) {
+		case O_SUBJECT: o->subject = v; break;
+		case O_DB: o->db_path = v; break;
+		case O_RIG: *rig_arg = v; break;
+		case O_OBSERVER: o->observer = v; break;
+		case O_RESUME: o->resume_id = v; break;
+		case O_SCREENSHOTS: o->screenshot_dir = v; break;
+		case O_HEADLESS: o->headless = true; break;
+		case O_PACE: o->pace = true; break;
+		case O_WINDOW: o->window = true; break;
+		case O_SEED:
+			if (cmd_parse_u64(v, &x) || x > 4294967295ull)
+				return opts_usage(cmd, "--seed takes a whole number from 0 to 4294967295 "
+						  "(got '%s')", v);
 			o->seed = x;
 			o->has_seed = true;
-		} else if (!strcmp(a, "--inject-drops") && v) {
-			if (cmd_parse_double(v, &o->inject_drops) || o->inject_drops < 0 || o->inject_drops > 1) {
-				fprintf(stderr, "tachist: --inject-drops takes a rate from 0 to 1\n");
-				return -1;
-			}
-		} else {
-			needs = false;
-			if (!strcmp(a, "--headless"))
-				o->headless = true;
-			else if (!strcmp(a, "--pace"))
-				o->pace = true;
-			else if (!strcmp(a, "--window"))
-				o->window = true;
-			else {
-				fprintf(stderr, "tachist: %s: unknown option or missing value '%s'\n", argv[0], a);
-				return -1;
-			}
+			break;
+		case O_INJECT_DROPS:
+			if (cmd_parse_double(v, &o->inject_drops) || o->inject_drops < 0 ||
+			    o->inject_drops > 1)
+				return opts_usage(cmd, "--inject-drops takes a rate from 0 to 1 (got '%s')", v);
+			break;
+		case OPTS_ARG:
+			if (!protocol)
+				return opts_usage(cmd, "unexpected argument '%s'", v);
+			if (*protocol)
+				return opts_usage(cmd, "one protocol at a time ('%s')", v);
+			*protocol = v;
+			break;
+		default: return EXIT_USAGE;
 		}
-		if (needs)
-			i++;
 	}
-	if ((o->pace || o->inject_drops > 0) && !o->headless) {
-		fprintf(stderr, "tachist: --pace and --inject-drops need --headless\n");
-		return -1;
-	}
+	if ((o->pace || o->inject_drops > 0) && !o->headless)
+		return opts_usage(cmd, "--pace and --inject-drops need --headless");
 	return 0;
 }
 
 int cmd_run(int argc, char **argv)
 {
 	struct run_options o = {.observer = "keyboard"};
-	char *rig_arg = NULL;
-	if (argc < 2 || argv[1][0] == '-') {
-		cmd_print_usage("run", stderr);
+	const char *rig_arg = NULL;
+	if (cmd_run_options("run", argc, argv, &o, &rig_arg, &o.protocol_path))
 		return EXIT_USAGE;
-	}
-	o.protocol_path = argv[1];
-	if (cmd_run_options(argc, argv, 2, &o, &rig_arg)) {
-		cmd_print_usage("run", stderr);
-		return EXIT_USAGE;
-	}
-	if (!o.subject && !o.resume_id) {
-		fprintf(stderr, "tachist: run needs --subject ID (letters and digits)\n");
-		cmd_print_usage("run", stderr);
-		return EXIT_USAGE;
-	}
+	if (!o.protocol_path)
+		return opts_usage("run", "name the protocol file");
+	if (!o.subject && !o.resume_id)
+		return opts_usage("run", "--subject ID is required (letters and digits)");
 	char *rig = NULL;
 	if (!o.resume_id) {
 		rig = cmd_rig_path(rig_arg);

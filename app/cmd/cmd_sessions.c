@@ -44,21 +44,27 @@ static cJSON *session_json(const struct store_session *ss)
 	return o;
 }
 
+enum { O_DB, O_SUBJECT, O_JSON };
+const struct opts_row cmd_sessions_opts[] = {
+	[O_DB] = {"db", "FILE", "the database to read (default tachist.db)"},
+	[O_SUBJECT] = {"subject", "ID", "only this subject's sessions"},
+	[O_JSON] = {"json", NULL, "one JSON document on standard output"},
+	OPTS_END,
+};
+
 int cmd_sessions(int argc, char **argv)
 {
-	const char *db = "tachist.db", *subject = NULL;
+	const char *db = "tachist.db", *subject = NULL, *val;
 	bool json = false;
-	for (int i = 1; i < argc; i++) {
-		if (!strcmp(argv[i], "--db") && i + 1 < argc)
-			db = argv[++i];
-		else if (!strcmp(argv[i], "--subject") && i + 1 < argc)
-			subject = argv[++i];
-		else if (!strcmp(argv[i], "--json"))
-			json = true;
-		else {
-			fprintf(stderr, "tachist sessions: unexpected argument '%s'\n", argv[i]);
-			cmd_print_usage("sessions", stderr);
-			return EXIT_USAGE;
+	struct opts p;
+	opts_begin(&p, "sessions", cmd_sessions_opts, argc, argv);
+	for (int k; (k = opts_next(&p, &val)) != OPTS_DONE;) {
+		switch (k) {
+		case O_DB: db = val; break;
+		case O_SUBJECT: subject = val; break;
+		case O_JSON: json = true; break;
+		case OPTS_ARG: return opts_usage("sessions", "unexpected argument '%s'", val);
+		default: return EXIT_USAGE;
 		}
 	}
 	struct store *s;

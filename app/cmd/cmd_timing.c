@@ -24,24 +24,32 @@ static const char *hist_bar(char *bar, size_t count, size_t top)
 	return bar;
 }
 
+enum { O_RIG, O_FRAMES, O_HEADLESS };
+const struct opts_row cmd_timing_opts[] = {
+	[O_RIG] = {"rig", "FILE", "the rig profile with the nominal refresh and display"},
+	[O_FRAMES] = {"frames", "N", "frames to flip, 20 to 100000 (default 300)"},
+	[O_HEADLESS] = {"headless", NULL, "no display: measure the virtual clock (a self-test)"},
+	OPTS_END,
+};
+
 int cmd_timing(int argc, char **argv)
 {
-	const char *rig_arg = NULL;
+	const char *rig_arg = NULL, *v;
 	unsigned long long nframes = 300;
 	bool headless = false;
-	for (int i = 1; i < argc; i++) {
-		if (!strcmp(argv[i], "--rig") && i + 1 < argc) {
-			rig_arg = argv[++i];
-		} else if (!strcmp(argv[i], "--frames") && i + 1 < argc) {
-			if (cmd_parse_u64(argv[++i], &nframes) || nframes < 20 || nframes > 100000) {
-				fprintf(stderr, "tachist: --frames takes a whole number from 20 to 100000\n");
-				return EXIT_USAGE;
-			}
-		} else if (!strcmp(argv[i], "--headless")) {
-			headless = true;
-		} else {
-			cmd_print_usage("timing", stderr);
-			return EXIT_USAGE;
+	struct opts p;
+	opts_begin(&p, "timing", cmd_timing_opts, argc, argv);
+	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
+		switch (k) {
+		case O_RIG: rig_arg = v; break;
+		case O_FRAMES:
+			if (cmd_parse_u64(v, &nframes) || nframes < 20 || nframes > 100000)
+				return opts_usage("timing", "--frames takes a whole number from 20 to "
+						  "100000 (got '%s')", v);
+			break;
+		case O_HEADLESS: headless = true; break;
+		case OPTS_ARG: return opts_usage("timing", "unexpected argument '%s'", v);
+		default: return EXIT_USAGE;
 		}
 	}
 	char *rigpath = cmd_rig_path(rig_arg);
