@@ -97,7 +97,9 @@ static const struct cmd commands[] = {
 	 "already there is not copied twice.",
 	 NULL, cmd_merge},
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
-	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n",
+	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n"
+	 "             [--subject ID] [--seed N] [--resume SESSION] [--window] [--inject-drops RATE]\n"
+	 "             [--screenshots DIR]\n",
 	 "Runs protocols/demo.ini from the source folder on the demo stimuli and prints a short "
 	 "report. With a display the observer answers with the keyboard; without one a model "
 	 "observer answers on a virtual clock. It accepts the options of run as well.",
