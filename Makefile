@@ -37,7 +37,7 @@ DEB_PKGS := gcc make pkg-config libncurses-dev libsdl2-dev libsdl2-image-dev lib
             libsdl2-ttf-dev libfontconfig-dev fonts-dejavu-core libevdev-dev libpq-dev \
             postgresql mandoc
 
-.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets
+.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets soak compilers
 all: $(BUILD)/tachist
 
 $(BUILD)/tachist: $(OBJ)
@@ -98,6 +98,12 @@ demo: deps
 
 fuzz:
 	@sh tests/fuzz/run.sh
+
+# Long robustness runs (every exact interval, simulated fits, the whole malformed-input corpus):
+# tests/soak/*.sh, each printing ok/not ok lines like an end-to-end script. Minutes, not in `test`.
+soak: deps
+	$(MAKE) --no-print-directory BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
+	@BUILD=build/san sh tests/soak/run.sh
 
 # The demo stimulus set is committed; it is drawn again only when its list is missing.
 demo-assets:
