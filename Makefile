@@ -41,7 +41,8 @@ PREFIX   ?= /usr/local
 BINDIR   ?= $(PREFIX)/bin
 MANDIR   ?= $(PREFIX)/share/man
 
-.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets man install uninstall
+.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets soak compilers \
+        man install uninstall
 all: $(BUILD)/tachist
 
 $(BUILD)/tachist: $(OBJ)
@@ -102,6 +103,12 @@ demo: deps
 
 fuzz:
 	@sh tests/fuzz/run.sh
+
+# Long robustness runs (every exact interval, simulated fits, the whole malformed-input corpus):
+# tests/soak/*.sh, each printing ok/not ok lines like an end-to-end script. Minutes, not in `test`.
+soak: deps
+	$(MAKE) --no-print-directory BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
+	@BUILD=build/san sh tests/soak/run.sh
 
 # The demo stimulus set is committed; it is drawn again only when its list is missing.
 demo-assets:

@@ -30,7 +30,7 @@ cat >"$1" <<PROTO
 [experiment]
 name = e2e
 list = $2
-[choices]
+[categories]
 ring = s
 bar = d
 cross = f
