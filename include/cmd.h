@@ -1,5 +1,6 @@
 /* cmd — the subcommands and the helpers they share. Each subcommand lives in app/cmd/cmd_<name>.c
- * and is one row of the table in app/cmd/main.c. Only this layer and the console speak to people. */
+ * with its option table and is one row of the table in app/cmd/commands.c. Only this layer and the
+ * console speak to people. */
 #ifndef TACHIST_CMD_H
 #define TACHIST_CMD_H
 
@@ -9,7 +10,7 @@
 #include "diag.h"
 #include "opts.h"
 
-/* Exit codes (DESIGN.md): 0 success, 1 problems found or the work failed, 2 usage error. */
+/* Exit codes (docs/design.md): 0 success, 1 problems found or the work failed, 2 usage error. */
 enum { EXIT_OK = 0, EXIT_PROBLEMS = 1, EXIT_USAGE = 2 };
 
 struct cmd {

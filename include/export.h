@@ -1,7 +1,7 @@
 /* export — trial tables out of the store: CSV (RFC 4180), TSV, JSON (cJSON) and a BIDS
  * behavioural dataset.
  *
- * Tables have one row per trial with the columns of DESIGN.md ("Exported trial columns") and the
+ * Tables have one row per trial with the exported trial columns (docs/storage.md) and the
  * stimulus list's label columns after `source`. Rows stream from the store's iterator, so memory
  * does not grow with the row count. Text cells of CSV and TSV that start with = + - @ tab or
  * carriage return get a leading apostrophe (OWASP "CSV Injection" guidance); numeric columns and

@@ -4,7 +4,7 @@
  *   weibull:  1 − exp(−(x/α)^β)            (x > 0; F(0) = 0)
  *   logistic: 1 / (1 + exp(−(x − α)/β))
  *   normal:   Φ((x − α)/β)                 (α mean, β standard deviation)
- * α is the position parameter and β the slope parameter (DESIGN.md's contract). */
+ * α is the position parameter and β the slope parameter (the contract in docs/design.md). */
 #ifndef TACHIST_PSYFN_H
 #define TACHIST_PSYFN_H
 

@@ -252,7 +252,7 @@ static void expect_int(const char *cell, bool has, long long v)
 	assert_string_equal(cell, want);
 }
 
-/* The header is DESIGN.md's "Exported trial columns" with the labels after source. */
+/* The header is the exported trial columns of docs/storage.md with the labels after source. */
 static const char *const want_header[] = {
 	"session_id", "subject", "block", "block_trial", "trial", "image", "category", "level",
 	"source", "set", "note", "response_key", "response", "correct", "rt_ms", "timed_out",
@@ -439,7 +439,7 @@ static void export_testSelect(void **state)
 	free(text);
 }
 
-/* JSON: one array of objects with the same keys; missing values are null (DESIGN.md). */
+/* JSON: one array of objects with the same keys; missing values are null (docs/design.md). */
 static void export_testJson(void **state)
 {
 	struct store *s = *state;

@@ -2,7 +2,7 @@
  * `calcs[]`.
  *
  * A row names its options (all `--NAME VALUE`, numbers unless the row parses them itself), which
- * of them are required, and a function that fills a result: the JSON keys DESIGN.md pins, each with
+ * of them are required, and a function that fills a result: the JSON keys docs/design.md pins, each with
  * a value, and one sentence for people. Options are parsed and checked once here, so a new
  * calculation (for example `dprime` or `ci`) is one function and one table row. */
 #include <cJSON.h>

@@ -2,7 +2,7 @@
  *
  * Each row is built in a small growing buffer and written with one fwrite, so the cost per row is
  * the store's step plus the formatting; the buffer is the only memory that lives across rows.
- * Column order is fixed by DESIGN.md: the standard columns up to `source`, then the label columns
+ * Column order is a contract (docs/design.md): the standard columns up to `source`, then the label columns
  * (the union over the exported sessions, in order of first appearance), then the rest. A label
  * whose name equals a standard column is written as `label_<name>`.
  *
