@@ -762,8 +762,10 @@ static void store_testLocked(void **state)
 	char *db = path_in("lock.db");
 	char *flag = path_in("locked.flag");
 	char cmd[1200];
-	snprintf(cmd, sizeof cmd, "printf 'BEGIN IMMEDIATE;\\n.shell touch %s\\n.shell sleep 1.5\\n"
-		 "COMMIT;\\n' | sqlite3 '%s' >/dev/null 2>&1 &", flag, db);
+	/* From inside the scratch folder: sqlite3's .shell joins its words with spaces, so a path
+	 * there would break wherever $TMPDIR holds a space. */
+	snprintf(cmd, sizeof cmd, "cd '%s' && printf 'BEGIN IMMEDIATE;\\n.shell touch locked.flag\\n"
+		 ".shell sleep 1.5\\nCOMMIT;\\n' | sqlite3 lock.db >/dev/null 2>&1 &", dir);
 	assert_int_equal(system(cmd), 0);
 	for (int i = 0; i < 200 && access(flag, F_OK); i++)
 		usleep(20000);
