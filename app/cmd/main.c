@@ -42,8 +42,8 @@ static const struct cmd commands[] = {
 	 "                      [--units unit|255] [--norm l2|linf] [--tolerance FRAC] [--near-bits N]\n"
 	 "tachist stimuli controls LIST.csv --out DIR [--seed N] [--budget measured|level]\n"
 	 "                         [--units unit|255] [--tolerance FRAC]\n", cmd_stimuli},
-	{"merge", "pool databases from several rigs into one",
-	 "tachist merge --into FILE DB...\n", cmd_merge},
+	{"pool", "pool databases from several rigs into one",
+	 "tachist pool --into FILE DB...\n", cmd_pool},
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
 	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n", cmd_demo},
 };
@@ -92,6 +92,11 @@ int main(int argc, char **argv)
 		return EXIT_OK;
 	}
 	const struct cmd *c = cmd_find(argv[1]);
+	if (!c && !strcmp(argv[1], "merge")) {
+		fprintf(stderr, "tachist: there is no command 'merge'; pooling databases is "
+			"'tachist pool --into FILE DB...'\n");
+		return EXIT_USAGE;
+	}
 	if (!c) {
 		fprintf(stderr, "tachist: unknown command '%s'\n\n", argv[1]);
 		print_help(stderr);

@@ -37,16 +37,16 @@ for where in rw ro; do
   chmod 444 "$db"
   [ "$where" = ro ] && chmod 555 "$WORK/ro"
   before=$(sqlite3 "$db" 'SELECT count(*) FROM trials')
-  as_user "$TACHIST" merge --into "$db" "$WORK/other.db" >"$WORK/ro.out" 2>"$WORK/ro.err"
-  expect_eq "$where: merging into a read-only database fails" 1 $?
+  as_user "$TACHIST" pool --into "$db" "$WORK/other.db" >"$WORK/ro.out" 2>"$WORK/ro.err"
+  expect_eq "$where: pooling into a read-only database fails" 1 $?
   check "$where: with a message saying the database is read-only" grep -q "read-only" "$WORK/ro.err"
   expect_eq "$where: its trials are intact" "$before" "$(sqlite3 "$db" 'SELECT count(*) FROM trials')"
   as_user "$TACHIST" sessions --db "$db" >"$WORK/ro.out" 2>"$WORK/ro.err"
   expect_eq "$where: a read-only database can still be listed" 0 $?
   as_user "$TACHIST" export --db "$db" --format csv --out - >"$WORK/ro.csv" 2>"$WORK/ro.err"
   expect_eq "$where: and exported" 5 "$(grep -c '^[0-9a-f]\{8\}-' "$WORK/ro.csv")"
-  as_user "$TACHIST" merge --into "$WORK/rw/pool.db" "$db" >"$WORK/ro.out" 2>"$WORK/ro.err"
-  expect_eq "$where: and merged from" 0 $?
+  as_user "$TACHIST" pool --into "$WORK/rw/pool.db" "$db" >"$WORK/ro.out" 2>"$WORK/ro.err"
+  expect_eq "$where: and pooled from" 0 $?
 done
 chmod 755 "$WORK/ro"
 expect_eq "the pool got both read-only sessions" 2 "$(sqlite3 "$WORK/rw/pool.db" 'SELECT count(*) FROM sessions')"
