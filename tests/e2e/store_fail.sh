@@ -23,6 +23,37 @@ else
   check "some trials were committed before the disk filled" test "${n:-0}" -gt 10
   expect_eq "every committed trial is there, indices contiguous, session aborted" "$n|$n|aborted" "$(sed -n 3p "$WORK/full.res")"
 fi
+# -- full disk at the end of a session, then readers on the full disk ---------------------------
+# The disk fills just before the session ends: the end must still be stored (the reserve file
+# beside the database makes room), and while the disk stays full, sessions, export (to another
+# disk) and report work: readers never write.
+mkdir "$WORK/tiny3"
+cat >"$WORK/endfull.sh" <<SHEOF
+mount -t tmpfs -o size=1m tmpfs "$WORK/tiny3" || exit 77
+"$FILL" "$WORK/tiny3/e.db" 1 20 --flips 10 --subject END --plain --fill-disk "$WORK/tiny3/filler" >"$WORK/end.out" 2>"$WORK/end.err"
+echo "rc \$?" >"$WORK/endfull.res"
+dd if=/dev/zero of="$WORK/tiny3/filler2" bs=4k 2>/dev/null; dd if=/dev/zero of="$WORK/tiny3/filler3" bs=1 2>/dev/null
+df -k "$WORK/tiny3" | awk 'NR == 2 { print (\$4 == 0 ? "full" : "room " \$4) }' >>"$WORK/endfull.res"
+"$TACHIST" sessions --db "$WORK/tiny3/e.db" >"$WORK/end.sessions" 2>"$WORK/end.sessions.err"
+echo "sessions \$?" >>"$WORK/endfull.res"
+"$TACHIST" export --db "$WORK/tiny3/e.db" --format csv --out "$WORK/end.csv" 2>"$WORK/end.export.err"
+echo "export \$?" >>"$WORK/endfull.res"
+"$TACHIST" report --db "$WORK/tiny3/e.db" --all >"$WORK/end.report" 2>"$WORK/end.report.err"
+echo "report \$?" >>"$WORK/endfull.res"
+SHEOF
+unshare -rm sh "$WORK/endfull.sh"; rc=$?
+if [ "$rc" = 77 ] || [ ! -s "$WORK/endfull.res" ]; then
+  ok "full disk at the end: skipped (cannot mount a tmpfs in a private namespace here) # SKIP"
+else
+  expect_eq "the session ends although the disk filled first" "rc 0" "$(sed -n 1p "$WORK/endfull.res")"
+  expect_eq "the disk is full for the readers" full "$(sed -n 2p "$WORK/endfull.res")"
+  expect_eq "sessions lists it on the full disk" "sessions 0" "$(sed -n 3p "$WORK/endfull.res")"
+  expect_eq "export writes it to another disk" "export 0" "$(sed -n 4p "$WORK/endfull.res")"
+  expect_eq "report reads it" "report 0" "$(sed -n 5p "$WORK/endfull.res")"
+  check "and its status is complete" grep -q " END .* complete " "$WORK/end.sessions"
+  expect_eq "the export has every trial" 21 "$(grep -c . "$WORK/end.csv")"
+  sed 's/^/#   /' "$WORK/end.err" "$WORK/end.sessions.err" "$WORK/end.export.err" "$WORK/end.report.err" | head -n 10
+fi
 # -- read-only file ----------------------------------------------------------------------------
 # Root ignores permission bits: run as nobody when we are root.
 as_user() { if [ "$(id -u)" = 0 ]; then setpriv --reuid=65534 --regid=65534 --clear-groups "$@"; else "$@"; fi; }
