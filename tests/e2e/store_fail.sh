@@ -67,7 +67,7 @@ echo "report \$?" >>"$WORK/endfull.res"
 SHEOF
 unshare -rm sh "$WORK/endfull.sh"; rc=$?
 if [ "$rc" = 77 ] || [ ! -s "$WORK/endfull.res" ]; then
-  ok "full disk at the end: skipped (cannot mount a tmpfs in a private namespace here) # SKIP"
+  skip "full disk at the end" "cannot mount a tmpfs in a private namespace here"
 else
   expect_eq "the session ends although the disk filled first" "rc 0" "$(sed -n 1p "$WORK/endfull.res")"
   expect_eq "the disk is full for the readers" full "$(sed -n 2p "$WORK/endfull.res")"
