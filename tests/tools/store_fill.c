@@ -1,5 +1,5 @@
 /* store_fill — writes a database of invented sessions through the store's write API, for the
- * export and merge end-to-end tests and the benchmarks.
+ * export and pool end-to-end tests and the benchmarks.
  *
  *   store_fill DB SESSIONS TRIALS [--flips K] [--subject ID] [--plain] [--running]
  *              [--fill-disk FILE]
