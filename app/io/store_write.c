@@ -457,20 +457,19 @@ static int complete_when_done(struct store *s, const char *session_id, char **er
 {
 	char now[32];
 	store_utc_now(now);
-	sqlite3_stmt *st = store_prep(s, "UPDATE sessions SET status = 'complete', ended_utc = ?2"
-				      " WHERE id = ?1 AND status = 'running' AND planned_trials > 0"
-				      " AND planned_trials <= (SELECT count(*) FROM trials"
-				      " WHERE session_id = ?1 AND repeat_of IS NULL)", err,
-				      "completing the session");
+	sqlite3_stmt *st = store_cached(s, ST_COMPLETE, "UPDATE sessions SET status = 'complete',"
+					" ended_utc = ?2 WHERE id = ?1 AND status = 'running'"
+					" AND planned_trials > 0 AND planned_trials <= (SELECT count(*)"
+					" FROM trials WHERE session_id = ?1 AND repeat_of IS NULL)", err);
 	if (!st)
 		return -1;
 	store_bind_text(st, 1, session_id);
 	store_bind_text(st, 2, now);
 	int rc = sqlite3_step(st);
+	sqlite3_reset(st);
 	if (rc != SQLITE_DONE)
-		store_db_fail(s, err, "completing the session");
-	sqlite3_finalize(st);
-	return rc == SQLITE_DONE ? 0 : -1;
+		return store_db_fail(s, err, "completing the session");
+	return 0;
 }
 
 static int put_row(struct store *s, const char *session_id, const struct trial_record *t,
