@@ -214,6 +214,11 @@ enum store_type {
 	STORE_JSON,    /* TEXT holding JSON, written and read by the store itself, no field / jsonb */
 };
 
+/* The column type of T in SQLite ("INTEGER", "REAL", "TEXT") or, when POSTGRES, in PostgreSQL
+ * ("integer", "bigint", "double precision", "boolean", "timestamptz", "uuid", "text", "jsonb"),
+ * for the schema of a pooled PostgreSQL database generated from the same tables. */
+const char *store_type_sql(enum store_type t, bool postgres);
+
 /* When a field holds no value. */
 enum store_missing {
 	STORE_ALWAYS,      /* always has one */

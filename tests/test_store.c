@@ -1250,6 +1250,34 @@ static void store_testPoolDamagedSource(void **state)
 	store_session_clear(&b);
 }
 
+/* Every column of both tables has a type with a SQLite and a PostgreSQL name, unique names and
+ * a description; the PostgreSQL names are the ones the pool target's schema will use
+ * (PostgreSQL documentation, "Data Types": bigint, timestamptz, uuid, jsonb). */
+static void store_testColumnTables(void **state)
+{
+	(void)state;
+	const struct store_table *tabs[2] = {&store_sessions_table, &store_trials_table};
+	for (int k = 0; k < 2; k++)
+		for (size_t i = 0; i < tabs[k]->ncols; i++) {
+			const struct store_column *c = &tabs[k]->cols[i];
+			assert_non_null(store_type_sql(c->type, false));
+			assert_non_null(store_type_sql(c->type, true));
+			assert_true(c->description && c->description[0]);
+			assert_true((c->off == STORE_NO_FIELD) == (c->type == STORE_JSON));
+			for (size_t j = 0; j < i; j++)
+				assert_string_not_equal(c->name, tabs[k]->cols[j].name);
+		}
+	assert_string_equal(store_type_sql(STORE_INT64, true), "bigint");
+	assert_string_equal(store_type_sql(STORE_TIME, true), "timestamptz");
+	assert_string_equal(store_type_sql(STORE_UUID, true), "uuid");
+	assert_string_equal(store_type_sql(STORE_BOOL, true), "boolean");
+	assert_string_equal(store_type_sql(STORE_REAL, false), "REAL");
+	assert_string_equal(store_status_name(STORE_ENDED_EARLY), "ended-early");
+	enum store_status st;
+	assert_int_equal(store_status_parse("ended-early", &st), 0);
+	assert_int_equal(st, STORE_ENDED_EARLY);
+}
+
 /* describe copies what protocol, list and rig say. */
 static void store_testDescribe(void **state)
 {
@@ -1304,6 +1332,7 @@ int main(void)
 		cmocka_unit_test(store_testReaderNeverWrites),
 		cmocka_unit_test(store_testCompleteWhenPlanDone),
 		cmocka_unit_test(store_testPoolDamagedSource),
+		cmocka_unit_test(store_testColumnTables),
 	};
 	return cmocka_run_group_tests(tests, setup, teardown);
 }

@@ -186,6 +186,32 @@ int store_status_parse(const char *name, enum store_status *out)
 	return -1;
 }
 
+const char *store_type_sql(enum store_type t, bool postgres)
+{
+	switch (t) {
+	case STORE_INT:
+		return postgres ? "integer" : "INTEGER";
+	case STORE_INT64:
+	case STORE_SEED:
+		return postgres ? "bigint" : "INTEGER";
+	case STORE_BOOL:
+		return postgres ? "boolean" : "INTEGER";
+	case STORE_REAL:
+		return postgres ? "double precision" : "REAL";
+	case STORE_TIME:
+		return postgres ? "timestamptz" : "TEXT";
+	case STORE_UUID:
+		return postgres ? "uuid" : "TEXT";
+	case STORE_JSON:
+		return postgres ? "jsonb" : "TEXT";
+	case STORE_TEXT:
+	case STORE_HASH:
+	case STORE_STATUS:
+		break;
+	}
+	return postgres ? "text" : "TEXT";
+}
+
 void store_column_value(const struct store_column *c, const void *row, struct store_value *v)
 {
 	memset(v, 0, sizeof *v);

@@ -23,17 +23,7 @@
 
 static const char *sql_type(enum store_type t)
 {
-	switch (t) {
-	case STORE_INT:
-	case STORE_INT64:
-	case STORE_BOOL:
-	case STORE_SEED:
-		return "INTEGER";
-	case STORE_REAL:
-		return "REAL";
-	default:
-		return "TEXT";
-	}
+	return store_type_sql(t, false);
 }
 
 char *store_col_list(const struct store_table *t, const char *prefix, bool with_json)
