@@ -37,7 +37,7 @@ int cmd_export(int argc, char **argv);
 int cmd_fit(int argc, char **argv);
 int cmd_calc(int argc, char **argv);
 int cmd_stimuli(int argc, char **argv);
-int cmd_merge(int argc, char **argv);
+int cmd_pool(int argc, char **argv);
 int cmd_demo(int argc, char **argv);
 
 /* Shared by `run` and `demo` (app/cmd/cmd_run.c; both take the options of cmd_run_opts): parse

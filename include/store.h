@@ -1,11 +1,11 @@
-/* store — the SQLite database that holds every session and trial (app/io/store.c is the only file
- * that includes sqlite3.h).
+/* store — the SQLite database that holds every session and trial (the app/io/store*.c files are
+ * the only ones that include sqlite3.h; app/io/store_int.h is their private header).
  *
  * WAL, synchronous=FULL, foreign keys on, a busy timeout, schema version in user_version with
  * forward migrations. One transaction per trial. Errors come back as -1 with a malloc'd sentence
  * in *ERR (the caller frees it; ERR may be NULL); nothing here prints.
  *
- * This header is the contract the run layer, the console, report, export and merge use. The store
+ * This header is the contract the run layer, the console, report, export and pool use. The store
  * module owns it and may extend it; the write side below is what the trial loop needs.
  *
  * Tables (README "Database and exported tables" documents every column):
@@ -30,9 +30,15 @@ struct rig;
 
 /* Schema version this build writes (PRAGMA user_version). Older files are migrated on open;
  * newer ones are refused. */
-#define STORE_SCHEMA_VERSION 3
+#define STORE_SCHEMA_VERSION 4
 
-enum store_status { STORE_RUNNING, STORE_COMPLETE, STORE_ABORTED, STORE_INTERRUPTED };
+/* Session states (docs/storage-states.md): running while a run owns it; complete once every
+ * planned trial is stored; ended-early when the experimenter ended it before that; interrupted
+ * when its process died or was stopped by a signal; aborted when storing failed. */
+enum store_status {
+	STORE_RUNNING, STORE_COMPLETE, STORE_ABORTED, STORE_INTERRUPTED, STORE_ENDED_EARLY
+};
+#define STORE_NSTATUS 5
 
 /* A session as stored. Strings are owned by the struct (store_session_clear). */
 struct store_session {
@@ -59,14 +65,21 @@ struct store_session {
 	double distance_cm;
 	double nominal_hz;         /* the rig's nominal refresh */
 	double stim_deg;           /* stimulus size asked for, degrees */
+	int planned_trials;        /* trials in the plan; 0 = unknown (sessions before schema 4) */
+	int owner_pid;             /* process running it (store_session_begin and _own fill it) */
+	char *owner_host;
 };
 
 /* Opens or creates PATH and brings its schema up to date. Returns 0 and *OUT, or -1 and *ERR
- * (a file that is not a database, a schema newer than this build, a read-only file that needs a
- * migration). A read-only file opens for reading; writes then fail with a clear message. */
+ * (a file that is not a tachist database, a schema newer than this build, a read-only file that
+ * needs a migration). A file that is not ours is refused before anything is written to it. Two
+ * processes creating the same new file at once both succeed. A read-only file opens for
+ * reading; writes then fail with a clear message. */
 int store_open(const char *path, struct store **out, char **err);
-/* As store_open for a file that must exist already (readers: report, export, sessions): a
- * missing PATH is refused with "no database at PATH" and nothing is created. */
+/* Opens a file that must exist already, for reading only (readers: report, export, sessions):
+ * a missing PATH is refused with "no database at PATH" and nothing is created. The file is never
+ * written, so readers work on a full disk and in read-only folders; an older schema is read
+ * through a migrated temporary copy (removed by store_close). */
 int store_open_existing(const char *path, struct store **out, char **err);
 void store_close(struct store *s);
 /* Path as given to store_open. */
@@ -106,6 +119,10 @@ int store_session_end(struct store *s, const char *session_id, enum store_status
  * records no owner (written before schema version 3). Sessions owned on other hosts are never
  * touched: their processes cannot be checked from here. */
 int store_recover(struct store *s, int *n, char **err);
+/* True when SS is running but its process is gone: owned on this host by a pid that no longer
+ * exists, or with no owner recorded. store_recover marks exactly these; readers that must not
+ * write show them as interrupted with this. */
+bool store_session_orphaned(const struct store_session *ss);
 /* Sets SESSION running again (ended time cleared) and owned by PID on HOST (NULL = this
  * host). For a resume, and for tests that need a session owned by some other process. */
 int store_session_own(struct store *s, const char *session_id, long pid, const char *host,
@@ -114,7 +131,7 @@ int store_session_own(struct store *s, const char *session_id, long pid, const c
 int store_session_get(struct store *s, const char *id, struct store_session *out, char **err);
 void store_session_clear(struct store_session *ss);
 const char *store_status_name(enum store_status st);
-/* Parses "running", "complete", "aborted", "interrupted"; returns 0 or -1. */
+/* Parses "running", "complete", "aborted", "interrupted", "ended-early"; returns 0 or -1. */
 int store_status_parse(const char *name, enum store_status *out);
 
 /* ---- reading ---- */
@@ -167,7 +184,97 @@ struct store_trial {
 	bool has_level_requested;
 	double level_requested;
 	int repeat_of;              /* -1, or the trial this one repeats */
+	const char *rt_clock;       /* what stamped the response: "frame" (SDL, after a flip) */
+#ifdef TACHIST_TEST_COLUMN
+	int test_column;            /* a column that exists only in the column-table test build */
+#endif
 };
+
+/* ---- the column tables ----
+ *
+ * Every column of the sessions and trials tables is one row of a descriptor table
+ * (app/io/store_columns.c). The schema, the migration that adds new columns, the insert, the
+ * reads, the pool and every export writer (CSV, TSV, JSON, BIDS and its sidecar) are generated
+ * from them. Adding a trial column: one descriptor row, a field in struct store_trial and its
+ * value in store_trial_from_record (see DEVELOPERS.md). A session column: one row and a field
+ * in struct store_session, set by whoever knows the fact before store_session_begin. */
+
+/* How a value is kept: SQLite type / C field / PostgreSQL type. */
+enum store_type {
+	STORE_TEXT,    /* TEXT / char * (NULL = missing) / text */
+	STORE_INT,     /* INTEGER / int / integer */
+	STORE_INT64,   /* INTEGER / int64_t (nanoseconds of CLOCK_MONOTONIC, or a count) / bigint */
+	STORE_REAL,    /* REAL / double / double precision */
+	STORE_BOOL,    /* INTEGER 0 or 1 / bool / boolean */
+	STORE_TIME,    /* TEXT, ISO 8601 UTC / char * / timestamptz */
+	STORE_UUID,    /* TEXT / char[37] / uuid */
+	STORE_HASH,    /* TEXT, hex SHA-256 / char[65] ("" = missing) / text */
+	STORE_SEED,    /* INTEGER, the same 64 bits / uint64_t / bigint */
+	STORE_STATUS,  /* TEXT status word / enum store_status / text */
+	STORE_JSON,    /* TEXT holding JSON, written and read by the store itself, no field / jsonb */
+};
+
+/* The column type of T in SQLite ("INTEGER", "REAL", "TEXT") or, when POSTGRES, in PostgreSQL
+ * ("integer", "bigint", "double precision", "boolean", "timestamptz", "uuid", "text", "jsonb"),
+ * for the schema of a pooled PostgreSQL database generated from the same tables. */
+const char *store_type_sql(enum store_type t, bool postgres);
+
+/* When a field holds no value. */
+enum store_missing {
+	STORE_ALWAYS,      /* always has one */
+	STORE_IF_NEG,      /* an int below 0 */
+	STORE_IF_ZERO,     /* 0 (or, for reals, not above 0) */
+	STORE_IF_UNFLAGGED /* the bool at has_off is false */
+};
+
+enum {
+	STORE_COL_ONE_BASED = 1,    /* an index kept from 0, exported from 1 as the screens count */
+	STORE_COL_LABELS_AFTER = 2, /* the stimulus list's label columns follow this one */
+	STORE_COL_ROW = 4,          /* session column repeated on every exported trial row */
+	STORE_COL_META = 8,         /* session column in the JSON export and the BIDS sidecar */
+};
+
+#define STORE_NO_FIELD ((size_t)-1)
+
+struct store_column {
+	const char *name;           /* SQL column */
+	const char *export_name;    /* exported header; NULL = kept in the database only */
+	enum store_type type;
+	enum store_missing missing;
+	unsigned flags;
+	const char *constraint;     /* SQL after the type ("NOT NULL DEFAULT 0"), or "" */
+	size_t off, has_off;        /* field offsets in the row struct (STORE_NO_FIELD) */
+	const char *description;    /* one sentence, for the BIDS sidecar and docs */
+	const char *units;          /* NULL when none */
+};
+
+struct store_table {
+	const char *name;
+	const struct store_column *cols;
+	size_t ncols;
+	const char *constraints;    /* table constraints after the columns, or "" */
+	const char *options;        /* after the closing parenthesis ("WITHOUT ROWID"), or "" */
+};
+
+/* sessions rows are struct store_session, trials rows struct store_trial. */
+extern const struct store_table store_sessions_table, store_trials_table;
+
+/* A column's value in ROW (a struct store_session or store_trial), typed by its column: I for
+ * integer kinds and bools, R for reals, S for text kinds (borrowed from ROW). */
+struct store_value {
+	bool missing;
+	int64_t i;
+	double r;
+	const char *s;
+};
+void store_column_value(const struct store_column *c, const void *row, struct store_value *v);
+
+/* Fills OUT (zeroed first) with what store_trial_put stores for T: the record's fields and the
+ * text columns taken from P and L (borrowed from them; NULLs when they are NULL). Label values
+ * are borrowed from L's item; OUT->nlabels is L's label count. */
+void store_trial_from_record(struct store_trial *out, const char *session_id,
+			     const struct trial_record *t, const struct protocol *p,
+			     const struct stimlist *l);
 
 /* Every trial of SESSION (exact id) in trial order, as an array the caller frees with
  * store_trials_free. */
@@ -210,19 +317,20 @@ const char *const *store_iter_label_names(const struct store_iter *it, size_t *n
 const char *const *store_iter_choices(const struct store_iter *it, size_t session_index,
 				      size_t *n);
 
-/* ---- merge and limits ---- */
+/* ---- pooling and limits ---- */
 
-struct store_merge_stats {
+struct store_pool_stats {
 	size_t sessions_added, sessions_updated, trials_added, events_added;
 	size_t trials_conflicting;  /* same (session, trial) with different content: kept ours */
 	int source_version;         /* schema version the source had */
 };
 /* Adds to S everything in the database at SRC_PATH that S lacks, keyed by session UUID and
- * trial index, in one transaction. Merging the same file twice adds nothing. A source with an
- * older schema is migrated in a temporary copy (the file itself is not written); a newer one is
- * refused. Returns 0 or -1. */
-int store_merge_from(struct store *s, const char *src_path, struct store_merge_stats *st,
-		     char **err);
+ * trial index, in one transaction. Pooling the same file twice adds nothing. The source is
+ * never written: an older schema is migrated in a temporary copy; a newer one, a file that is
+ * not a tachist database and a damaged one are refused with a message naming SRC_PATH.
+ * Returns 0 or -1. */
+int store_pool_from(struct store *s, const char *src_path, struct store_pool_stats *st,
+		    char **err);
 
 /* Caps the database at MAX_PAGES pages (PRAGMA max_page_count) for this connection, to test a
  * full disk or enforce a quota. Returns 0 or -1. */

@@ -104,7 +104,8 @@ static int setup(void **state)
 			r.has_level = items[i].has_level;
 			r.level = items[i].level;
 			r.staircase = i == 2 ? 0 : -1;
-			r.repeat_of = -1;
+			r.repeat_of = i == 7 ? 1 : -1;
+			r.anticipation = i == 6;
 			r.response = i == 4 ? -1 : (i + k) % 3;
 			r.correct = r.response < 0 ? -1 : r.response == r.choice;
 			r.timed_out = r.response < 0;
@@ -254,11 +255,64 @@ static void expect_int(const char *cell, bool has, long long v)
 
 /* The header is the exported trial columns of docs/storage.md with the labels after source. */
 static const char *const want_header[] = {
-	"session_id", "subject", "block", "block_trial", "trial", "image", "category", "level",
-	"source", "set", "note", "response_key", "response", "correct", "rt_ms", "timed_out",
+	"session_id", "subject", "protocol", "started_utc", "block", "block_name", "practice",
+	"block_trial", "trial", "image", "category", "level", "source", "set", "note",
+	"response_key", "response", "correct", "rt_ms", "rt_clock", "timed_out", "anticipation",
 	"frames_planned", "frames_actual", "dropped_frames", "timing_ok", "onset_ns", "staircase",
+	"repeat_of",
+#ifdef TACHIST_TEST_COLUMN
+	"test_column",
+#endif
 };
 #define NCOLS (sizeof want_header / sizeof want_header[0])
+
+/* Index of column NAME in want_header. */
+static size_t col(const char *name)
+{
+	for (size_t j = 0; j < NCOLS; j++)
+		if (!strcmp(want_header[j], name))
+			return j;
+	fail_msg("no column %s", name);
+	return 0;
+}
+
+/* One exported row against the trial and session it came from: every column, indices from 1. */
+static void compare_row(char **c, const struct store_trial *r, const struct store_session *ss)
+{
+	expect_text(c[col("session_id")], r->session_id);
+	expect_text(c[col("subject")], r->subject);
+	expect_text(c[col("protocol")], ss->protocol_name);
+	expect_text(c[col("started_utc")], ss->started_utc);
+	expect_int(c[col("block")], true, r->block + 1);
+	expect_text(c[col("block_name")], r->block_name);
+	expect_int(c[col("practice")], true, r->practice);
+	expect_int(c[col("block_trial")], true, r->block_trial + 1);
+	expect_int(c[col("trial")], true, r->trial + 1);
+	expect_text(c[col("image")], r->image);
+	expect_text(c[col("category")], r->category);
+	expect_num(c[col("level")], r->has_level, r->level);
+	expect_text(c[col("source")], r->source);
+	expect_text(c[col("set")], r->label_values[0]);
+	expect_text(c[col("note")], r->label_values[1]);
+	expect_text(c[col("response_key")], r->response_key);
+	expect_text(c[col("response")], r->response_category);
+	expect_int(c[col("correct")], r->correct >= 0, r->correct);
+	expect_num(c[col("rt_ms")], r->has_rt, r->rt_ms);
+	expect_text(c[col("rt_clock")], "frame");
+	expect_int(c[col("timed_out")], true, r->timed_out);
+	expect_int(c[col("anticipation")], true, r->anticipation);
+	expect_int(c[col("frames_planned")], true, r->frames_planned);
+	expect_int(c[col("frames_actual")], true, r->frames_actual);
+	expect_int(c[col("dropped_frames")], true, r->dropped_frames);
+	expect_int(c[col("timing_ok")], true, r->timing_ok);
+	expect_int(c[col("onset_ns")], true, r->onset_ns);
+	expect_int(c[col("staircase")], r->staircase >= 0, r->staircase);
+	expect_int(c[col("repeat_of")], r->repeat_of >= 0, r->repeat_of + 1);
+#ifdef TACHIST_TEST_COLUMN
+	/* The column-table test build: the extra column's value is 7 * trial + 3 (0-based). */
+	expect_int(c[col("test_column")], true, 7 * r->trial + 3);
+#endif
+}
 
 static void compare_with_db(struct store *s, struct table *t)
 {
@@ -277,30 +331,7 @@ static void compare_with_db(struct store *s, struct table *t)
 		for (size_t i = 0; i < n; i++, row++) {
 			assert_true(row < t->nrows);
 			assert_int_equal(t->ncols[row], NCOLS);
-			char **c = t->rows[row];
-			struct store_trial *r = &tr[i];
-			expect_text(c[0], r->session_id);
-			expect_text(c[1], r->subject);
-			expect_int(c[2], true, r->block);
-			expect_int(c[3], true, r->block_trial);
-			expect_int(c[4], true, r->trial);
-			expect_text(c[5], r->image);
-			expect_text(c[6], r->category);
-			expect_num(c[7], r->has_level, r->level);
-			expect_text(c[8], r->source);
-			expect_text(c[9], r->label_values[0]);
-			expect_text(c[10], r->label_values[1]);
-			expect_text(c[11], r->response_key);
-			expect_text(c[12], r->response_category);
-			expect_int(c[13], r->correct >= 0, r->correct);
-			expect_num(c[14], r->has_rt, r->rt_ms);
-			expect_int(c[15], true, r->timed_out);
-			expect_int(c[16], true, r->frames_planned);
-			expect_int(c[17], true, r->frames_actual);
-			expect_int(c[18], true, r->dropped_frames);
-			expect_int(c[19], true, r->timing_ok);
-			expect_int(c[20], true, r->onset_ns);
-			expect_int(c[21], r->staircase >= 0, r->staircase);
+			compare_row(t->rows[row], &tr[i], &v[k]);
 		}
 		store_trials_free(tr, n);
 	}
@@ -389,7 +420,9 @@ static void export_testCsvRoundTrip(void **state)
 	size_t len;
 	char *text = export_to_memory(s, EXPORT_CSV, NULL, NULL, &len);
 	/* RFC 4180 section 2 rule 1: CRLF ends each record. */
-	assert_non_null(strstr(text, "staircase\r\n"));
+	char *eol = xasprintf("%s\r\n", want_header[NCOLS - 1]);
+	assert_non_null(strstr(text, eol));
+	free(eol);
 	assert_non_null(strstr(text, "\"'=cmd\""));
 	struct table t;
 	parse_table(text, len, ',', &t);
@@ -439,7 +472,8 @@ static void export_testSelect(void **state)
 	free(text);
 }
 
-/* JSON: one array of objects with the same keys; missing values are null (docs/design.md). */
+/* JSON: an object with the sessions' metadata and one array of trial objects with the same keys
+ * in the table's order; missing values are null (docs/storage.md). */
 static void export_testJson(void **state)
 {
 	struct store *s = *state;
@@ -447,16 +481,26 @@ static void export_testJson(void **state)
 	char *text = export_to_memory(s, EXPORT_JSON, NULL, "S1", &len);
 	cJSON *doc = cJSON_Parse(text);
 	assert_non_null(doc);
-	assert_true(cJSON_IsArray(doc));
-	assert_int_equal(cJSON_GetArraySize(doc), 8);
+	cJSON *sessions = cJSON_GetObjectItem(doc, "sessions");
+	cJSON *trials = cJSON_GetObjectItem(doc, "trials");
+	assert_true(cJSON_IsArray(sessions) && cJSON_IsArray(trials));
+	assert_int_equal(cJSON_GetArraySize(sessions), 1);
+	assert_int_equal(cJSON_GetArraySize(trials), 8);
 	struct store_session *v;
 	size_t nsess;
 	assert_int_equal(store_sessions_list(s, "S1", &v, &nsess, NULL), 0);
+	cJSON *meta = cJSON_GetArrayItem(sessions, 0);
+	assert_string_equal(cJSON_GetObjectItem(meta, "session_id")->valuestring, v[0].id);
+	assert_string_equal(cJSON_GetObjectItem(meta, "status")->valuestring, "complete");
+	assert_string_equal(cJSON_GetObjectItem(meta, "timing_mode")->valuestring, "simulated");
+	assert_true(cJSON_GetObjectItem(meta, "distance_cm")->valuedouble == 57);
+	assert_true(cJSON_IsString(cJSON_GetObjectItem(meta, "seed")));   /* 64 bits: as text */
+	assert_null(cJSON_GetObjectItem(meta, "protocol_text"));
 	struct store_trial *tr;
 	size_t n;
 	assert_int_equal(store_trials_load(s, v[0].id, &tr, &n, NULL), 0);
 	size_t i = 0;
-	for (cJSON *o = doc->child; o; o = o->next, i++) {
+	for (cJSON *o = trials->child; o; o = o->next, i++) {
 		int k = 0;
 		for (cJSON *f = o->child; f; f = f->next, k++)
 			assert_string_equal(f->string, want_header[k]);
@@ -465,6 +509,8 @@ static void export_testJson(void **state)
 		assert_string_equal(cJSON_GetObjectItem(o, "category")->valuestring, r->category);
 		assert_string_equal(cJSON_GetObjectItem(o, "note")->valuestring, r->label_values[1]);
 		assert_string_equal(cJSON_GetObjectItem(o, "image")->valuestring, r->image);
+		assert_int_equal(cJSON_GetObjectItem(o, "trial")->valueint, r->trial + 1);
+		assert_int_equal(cJSON_GetObjectItem(o, "block")->valueint, r->block + 1);
 		cJSON *lv = cJSON_GetObjectItem(o, "level");
 		if (r->has_level)
 			assert_true(lv->valuedouble == r->level);
@@ -477,6 +523,11 @@ static void export_testJson(void **state)
 			assert_true(cJSON_IsNull(rt));
 		assert_true(cJSON_IsNull(cJSON_GetObjectItem(o, "source")) == (r->source == NULL));
 		assert_true(cJSON_GetObjectItem(o, "onset_ns")->valuedouble == (double)r->onset_ns);
+		cJSON *rep = cJSON_GetObjectItem(o, "repeat_of");
+		if (r->repeat_of >= 0)
+			assert_int_equal(rep->valueint, r->repeat_of + 1);
+		else
+			assert_true(cJSON_IsNull(rep));
 	}
 	assert_int_equal(i, 8);
 	store_trials_free(tr, n);
@@ -500,6 +551,46 @@ static char *slurp(const char *path, size_t *len)
 	return b;
 }
 
+/* A BIDS table split on newlines and tabs only (no quoting: cells are escaped instead). */
+static void split_tsv(const char *text, struct table *t)
+{
+	memset(t, 0, sizeof *t);
+	const char *line = text;
+	while (*line) {
+		const char *end = strchr(line, '\n');
+		assert_non_null(end);
+		const char *c = line;
+		for (;;) {
+			const char *e = c;
+			while (e < end && *e != '\t')
+				e++;
+			on_field((void *)c, (size_t)(e - c), t);
+			if (e == end)
+				break;
+			c = e + 1;
+		}
+		on_row(0, t);
+		line = end + 1;
+	}
+}
+
+/* Undoes the \t \n \r \\ escapes of a BIDS text cell (into a static buffer). */
+static const char *unescape(const char *c)
+{
+	static char out[512];
+	size_t k = 0;
+	for (; *c && k + 1 < sizeof out; c++) {
+		if (*c == '\\' && c[1]) {
+			c++;
+			out[k++] = *c == 't' ? '\t' : *c == 'n' ? '\n' : *c == 'r' ? '\r' : *c;
+		} else {
+			out[k++] = *c;
+		}
+	}
+	out[k] = '\0';
+	return out;
+}
+
 /* BIDS folder: names, required fields and the tabular conventions (BIDS specification v1.9,
  * "Common principles: Tabular files", "Modality agnostic files", "Behavioral experiments"). */
 static void export_testBids(void **state)
@@ -508,6 +599,13 @@ static void export_testBids(void **state)
 	char *out = xasprintf("%s/bids", dir);
 	struct export_stats st;
 	char *err = NULL;
+	/* A participants.tsv already in the folder (from another export) is merged, not lost. */
+	assert_int_equal(mkdir(out, 0777), 0);
+	char *pre = xasprintf("%s/participants.tsv", out);
+	FILE *pf = fopen(pre, "w");
+	fputs("participant_id\tage\nsub-P0\t31\nsub-S2\t40\n", pf);
+	fclose(pf);
+	free(pre);
 	int rc = export_bids(s, NULL, NULL, out, &st, &err);
 	if (rc)
 		fprintf(stderr, "# %s\n", err);
@@ -527,7 +625,7 @@ static void export_testBids(void **state)
 	/* "Participants file": participant_id is the first column, values sub-<label>. */
 	p = xasprintf("%s/participants.tsv", out);
 	text = slurp(p, &len);
-	assert_string_equal(text, "participant_id\nsub-S1\nsub-S2\n");
+	assert_string_equal(text, "participant_id\tage\nsub-P0\t31\nsub-S2\t40\nsub-S1\tn/a\n");
 	free(text);
 	free(p);
 
@@ -544,7 +642,8 @@ static void export_testBids(void **state)
 	p = xasprintf("%s/sub-S1/ses-%s/beh/sub-S1_ses-%s_task-unittask1_beh.tsv", out, ses, ses);
 	text = slurp(p, &len);
 	struct table t;
-	parse_table(text, len, '\t', &t);
+	split_tsv(text, &t);
+	/* One physical line per trial whatever the labels hold (tabs, newlines, quotes). */
 	assert_int_equal(t.nrows, 9);
 	/* "Tabular files": first row is the header; onset then duration come first. */
 	assert_string_equal(t.rows[0][0], "onset");
@@ -558,10 +657,12 @@ static void export_testBids(void **state)
 			col_level = (int)j;
 		if (!strcmp(t.rows[0][j], "source"))
 			col_src = (int)j;
-		/* Times are in seconds: no ns or ms columns remain. */
-		assert_null(strstr(t.rows[0][j], "_ns"));
-		assert_null(strstr(t.rows[0][j], "_ms"));
 	}
+	/* BIDS's own onset, duration and response_time (seconds), then the exported columns. */
+	assert_int_equal(ncol, 3 + NCOLS);
+	assert_string_equal(t.rows[0][2], "response_time");
+	for (size_t j = 0; j < NCOLS; j++)
+		assert_string_equal(t.rows[0][3 + j], want_header[j]);
 	assert_true(col_rt > 0 && col_level > 0 && col_src > 0);
 	struct store_trial *tr;
 	size_t n;
@@ -584,9 +685,26 @@ static void export_testBids(void **state)
 			assert_string_equal(t.rows[i][col_level], "n/a");
 		if (!r->source)
 			assert_string_equal(t.rows[i][col_src], "n/a");
+		/* Every exported column equals the database (n/a read as missing). */
+		char *cells[NCOLS];
+		for (size_t j = 0; j < NCOLS; j++) {
+			const char *c = t.rows[i][3 + j];
+			cells[j] = xstrdup(strcmp(c, "n/a") ? unescape(c) : "");
+		}
+		compare_row(cells, r, &v[0]);
+		for (size_t j = 0; j < NCOLS; j++)
+			free(cells[j]);
+		/* Text cells are exact after undoing the escapes; trial counts from 1. */
+		for (size_t j = 0; j < ncol; j++) {
+			if (!strcmp(t.rows[0][j], "note"))
+				assert_string_equal(unescape(t.rows[i][j]), r->label_values[1]);
+			if (!strcmp(t.rows[0][j], "image"))
+				assert_string_equal(unescape(t.rows[i][j]), r->image);
+			if (!strcmp(t.rows[0][j], "trial"))
+				assert_int_equal(atoi(t.rows[i][j]), r->trial + 1);
+		}
 	}
 	store_trials_free(tr, n);
-	free_table(&t);
 	free(text);
 	free(p);
 	/* The sidecar describes every column, with units for times and levels for categories. */
@@ -598,7 +716,7 @@ static void export_testBids(void **state)
 			    "s");
 	assert_string_equal(
 		cJSON_GetObjectItem(cJSON_GetObjectItem(sc, "response_time"), "Units")->valuestring, "s");
-	cJSON *lv = cJSON_GetObjectItem(cJSON_GetObjectItem(sc, "trial_type"), "Levels");
+	cJSON *lv = cJSON_GetObjectItem(cJSON_GetObjectItem(sc, "category"), "Levels");
 	assert_int_equal(cJSON_GetArraySize(lv), 3);
 	assert_non_null(cJSON_GetObjectItem(lv, "=cmd"));
 	cJSON *sp = cJSON_GetObjectItem(sc, "StimulusPresentation");
@@ -607,8 +725,17 @@ static void export_testBids(void **state)
 	assert_int_equal(cJSON_GetArraySize(cJSON_GetObjectItem(sp, "ScreenResolution")), 2);
 	assert_int_equal(cJSON_GetArraySize(cJSON_GetObjectItem(sp, "ScreenSize")), 2);
 	for (cJSON *c = sc->child; c; c = c->next)
-		if (cJSON_IsObject(c) && strcmp(c->string, "StimulusPresentation"))
+		if (cJSON_IsObject(c) && strcmp(c->string, "StimulusPresentation") &&
+		    strcmp(c->string, "Session"))
 			assert_non_null(cJSON_GetObjectItem(c, "Description"));
+	/* Every column of the table is described. */
+	for (size_t j = 0; j < ncol; j++)
+		assert_non_null(cJSON_GetObjectItem(cJSON_GetObjectItem(sc, t.rows[0][j]),
+						    "Description"));
+	cJSON *sm = cJSON_GetObjectItem(sc, "Session");
+	assert_string_equal(cJSON_GetObjectItem(sm, "session_id")->valuestring, v[0].id);
+	assert_string_equal(cJSON_GetObjectItem(sm, "status")->valuestring, "complete");
+	free_table(&t);
 	cJSON_Delete(sc);
 	free(text);
 	free(p);

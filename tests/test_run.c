@@ -153,7 +153,7 @@ static void run_testBlocksAndPause(void **state)
 }
 
 /* RUN_CMD_END from the callback ends the block at once with what was stored so far; the session
- * is then aborted (ended early), and a later run of the same block is a repeat. */
+ * is then ended-early, and a later run of the same block is a repeat. */
 static void run_testEndFromCallback(void **state)
 {
 	(void)state;
@@ -176,7 +176,7 @@ static void run_testEndFromCallback(void **state)
 	assert_int_equal(store_open(db, &st, &err), 0);
 	struct store_session ss;
 	assert_int_equal(store_session_get(st, id, &ss, &err), 0);
-	assert_int_equal(ss.status, STORE_ABORTED);
+	assert_int_equal(ss.status, STORE_ENDED_EARLY);
 	assert_int_equal(ss.ntrials, 5);
 	store_session_clear(&ss);
 	store_close(st);

@@ -273,8 +273,8 @@ static void store_testRefusesNewerSchema(void **state)
 {
 	(void)state;
 	char *db = path_in("future.db");
-	char *v = sh_line("sqlite3 '%s' 'CREATE TABLE sessions(id); PRAGMA user_version = 99;'"
-			  " && echo done", db);
+	char *v = sh_line("sqlite3 '%s' 'CREATE TABLE sessions(id); PRAGMA user_version = 99;"
+			  " PRAGMA application_id = %d;' && echo done", db, 0x74636873);
 	assert_string_equal(v, "done");
 	free(v);
 	struct store *s = NULL;
@@ -856,13 +856,13 @@ static void store_testMergeTwiceAddsNothing(void **state)
 	struct store *sb = open_with_session("mb.db", "S13", &b);
 	put_trials(sb, b.id, 0, 2, &p, &l);
 	char *src = path_in("ma.db");
-	struct store_merge_stats st;
-	assert_int_equal(store_merge_from(sb, src, &st, &err), 0);
+	struct store_pool_stats st;
+	assert_int_equal(store_pool_from(sb, src, &st, &err), 0);
 	assert_int_equal(st.sessions_added, 1);
 	assert_int_equal(st.trials_added, 4);
 	assert_int_equal(st.events_added, 1);
 	assert_int_equal(st.source_version, STORE_SCHEMA_VERSION);
-	assert_int_equal(store_merge_from(sb, src, &st, &err), 0);
+	assert_int_equal(store_pool_from(sb, src, &st, &err), 0);
 	assert_int_equal(st.sessions_added, 0);
 	assert_int_equal(st.sessions_updated, 0);
 	assert_int_equal(st.trials_added, 0);
@@ -880,7 +880,7 @@ static void store_testMergeTwiceAddsNothing(void **state)
 	free(fl);
 	/* Merging a database into itself is refused. */
 	char *self = path_in("mb.db");
-	assert_int_equal(store_merge_from(sb, self, &st, &err), -1);
+	assert_int_equal(store_pool_from(sb, self, &st, &err), -1);
 	free(err);
 	store_close(sb);
 	free(self);
@@ -975,6 +975,311 @@ static void store_testMigrateV2(void **state)
 	free(db);
 }
 
+/* SHA-256 of a file (GNU coreutils sha256sum), "" when it does not exist. */
+static char *file_sum(const char *path)
+{
+	return sh_line("sha256sum '%s' 2>/dev/null | cut -c1-64", path);
+}
+
+/* A file that is not ours (another program's application id, or tables and no schema
+ * version) is refused as "not a tachist database" and left byte for byte as it was: no WAL
+ * switch, no -wal or -shm file, no reserve. Issue 16 item 12: the old store switched it to WAL
+ * before refusing. */
+static void store_testForeignUntouched(void **state)
+{
+	(void)state;
+	const char *setups[2] = {
+		"CREATE TABLE notes(t); INSERT INTO notes VALUES ('x'); PRAGMA application_id = 1234;",
+		"CREATE TABLE sessions(id); CREATE TABLE trials(x); INSERT INTO sessions VALUES (1);",
+	};
+	for (int k = 0; k < 2; k++) {
+		char name[32];
+		snprintf(name, sizeof name, "foreign%d.db", k);
+		char *db = path_in(name);
+		char *v = sh_line("sqlite3 '%s' \"%s\" && echo done", db, setups[k]);
+		assert_string_equal(v, "done");
+		free(v);
+		char *before = file_sum(db);
+		struct store *s = NULL;
+		char *err = NULL;
+		assert_int_equal(store_open(db, &s, &err), -1);
+		assert_null(s);
+		assert_non_null(strstr(err, "not a tachist database"));
+		free(err);
+		err = NULL;
+		assert_int_equal(store_open_existing(db, &s, &err), -1);
+		assert_non_null(strstr(err, "not a tachist database"));
+		free(err);
+		char *after = file_sum(db);
+		assert_string_equal(before, after);
+		char *wal = xasprintf("%s-wal", db), *res = xasprintf("%s-reserve", db);
+		struct stat st;
+		assert_int_not_equal(stat(wal, &st), 0);
+		assert_int_not_equal(stat(res, &st), 0);
+		v = sh_line("sqlite3 '%s' 'PRAGMA journal_mode'", db);
+		assert_string_equal(v, "delete");
+		free(v);
+		free(wal);
+		free(res);
+		free(before);
+		free(after);
+		free(db);
+	}
+}
+
+/* A new database carries our application id. */
+static void store_testApplicationId(void **state)
+{
+	(void)state;
+	char *db = path_in("appid.db");
+	struct store *s = NULL;
+	char *err = NULL;
+	assert_int_equal(store_open(db, &s, &err), 0);
+	store_close(s);
+	char *v = sh_line("sqlite3 '%s' 'PRAGMA application_id'", db);
+	assert_int_equal(atoi(v), 0x74636873);
+	free(v);
+	free(db);
+}
+
+/* Two processes creating the same new database at once both succeed (issue 16 item 11: the
+ * schema was read before the write lock was taken, and one of a pair often failed). 50 pairs. */
+static void store_testConcurrentCreate(void **state)
+{
+	(void)state;
+	int failed = 0;
+	for (int pair = 0; pair < 50; pair++) {
+		char name[32];
+		snprintf(name, sizeof name, "race%d.db", pair);
+		char *db = path_in(name);
+		pid_t kids[2];
+		for (int k = 0; k < 2; k++) {
+			kids[k] = fork();
+			assert_true(kids[k] >= 0);
+			if (kids[k] == 0) {
+				struct store *s = NULL;
+				char *err = NULL;
+				int rc = store_open(db, &s, &err);
+				struct store_session ss = {0};
+				ss.subject = xstrdup(k ? "RaceB" : "RaceA");
+				if (!rc)
+					rc = store_session_begin(s, &ss, &err);
+				if (rc)
+					fprintf(stderr, "# pair %d: %s\n", pair, err);
+				_exit(rc ? 1 : 0);
+			}
+		}
+		for (int k = 0; k < 2; k++) {
+			int status;
+			waitpid(kids[k], &status, 0);
+			failed += !WIFEXITED(status) || WEXITSTATUS(status) != 0;
+		}
+		char *v = sh_line("sqlite3 '%s' 'SELECT count(*) FROM sessions'", db);
+		assert_int_equal(atoi(v), 2);
+		free(v);
+		free(db);
+	}
+	assert_int_equal(failed, 0);
+}
+
+/* Version 3 -> 4 (tests/data/store_v3.sql): the sessions table rebuilt without losing a trial,
+ * frame or event (foreign keys stay quiet during the rebuild), the new columns added, the old
+ * responses marked as read after a flip, and the new status word accepted. */
+static void store_testMigrateV3(void **state)
+{
+	(void)state;
+	char *db = path_in("v3.db");
+	char *v = sh_line("sqlite3 '%s' < tests/data/store_v3.sql >/dev/null && sqlite3 '%s' "
+			  "'PRAGMA user_version'", db, db);
+	assert_int_equal(atoi(v), 3);
+	free(v);
+	struct store *s = NULL;
+	char *err = NULL;
+	int rc = store_open(db, &s, &err);
+	if (rc)
+		fprintf(stderr, "# %s\n", err);
+	assert_int_equal(rc, 0);
+	v = sh_line("sqlite3 '%s' 'PRAGMA user_version; PRAGMA application_id' | paste -sd,", db);
+	assert_string_equal(v, "4,1952671859");
+	free(v);
+	v = sh_line("sqlite3 '%s' \"SELECT (SELECT count(*) FROM trials), (SELECT count(*) FROM "
+		    "frames), (SELECT count(*) FROM events), (SELECT group_concat(status) FROM "
+		    "(SELECT status FROM sessions ORDER BY id)), (SELECT count(*) FROM trials WHERE "
+		    "rt_clock = 'frame')\"", db);
+	assert_string_equal(v, "4|1|2|complete,aborted,running|4");
+	free(v);
+	struct store_trial *t;
+	size_t n;
+	const char *a = "3c3c3c3c-1111-4222-8333-444455556666";
+	assert_int_equal(store_trials_load(s, a, &t, &n, &err), 0);
+	assert_int_equal(n, 3);
+	assert_string_equal(t[0].block_name, "warmup");
+	assert_true(t[0].practice);
+	assert_string_equal(t[0].label_values[1], "first, with comma");
+	assert_true(t[0].has_level && t[0].level == 0.25);
+	assert_int_equal(t[1].correct, -1);
+	assert_false(t[1].has_rt);
+	assert_true(t[1].has_level_requested && t[1].level_requested == 0.5);
+	assert_int_equal(t[2].repeat_of, 1);
+	assert_string_equal(t[2].rt_clock, "frame");
+	store_trials_free(t, n);
+	struct store_session ss;
+	assert_int_equal(store_session_get(s, a, &ss, &err), 0);
+	assert_int_equal(ss.owner_pid, 4242);
+	assert_string_equal(ss.owner_host, "benchhost");
+	assert_int_equal(ss.planned_trials, 0);
+	assert_int_equal(ss.ntrials, 3);
+	store_session_clear(&ss);
+	assert_int_equal(store_session_end(s, a, STORE_ENDED_EARLY, &err), 0);
+	assert_int_equal(store_session_get(s, a, &ss, &err), 0);
+	assert_int_equal(ss.status, STORE_ENDED_EARLY);
+	store_session_clear(&ss);
+	/* The foreign keys still hold: deleting a session takes its trials, frames and events. */
+	v = sh_line("sqlite3 '%s' \"PRAGMA foreign_keys = ON; DELETE FROM sessions WHERE id = "
+		    "'3c3c3c3c-2222-4222-8333-444455556666'; SELECT count(*) FROM trials, frames, "
+		    "events\"", db);
+	assert_string_equal(v, "0");
+	free(v);
+	store_close(s);
+	free(db);
+}
+
+/* Readers never write: store_open_existing on an old-schema database reads it (through a
+ * migrated copy) and leaves the file byte for byte as it was (issue 16 item 13). */
+static void store_testReaderNeverWrites(void **state)
+{
+	(void)state;
+	char *db = path_in("v3r.db");
+	char *v = sh_line("sqlite3 '%s' < tests/data/store_v3.sql >/dev/null && echo done", db);
+	assert_string_equal(v, "done");
+	free(v);
+	char *before = file_sum(db);
+	struct store *s = NULL;
+	char *err = NULL;
+	assert_int_equal(store_open_existing(db, &s, &err), 0);
+	struct store_session *list;
+	size_t n;
+	assert_int_equal(store_sessions_list(s, NULL, &list, &n, &err), 0);
+	assert_int_equal(n, 3);
+	assert_string_equal(store_path(s), db);
+	store_sessions_free(list, n);
+	/* A write through a reader fails and changes nothing. */
+	assert_int_equal(store_event(s, "3c3c3c3c-1111-4222-8333-444455556666", "note", "x", &err),
+			 -1);
+	free(err);
+	store_close(s);
+	char *after = file_sum(db);
+	assert_string_equal(before, after);
+	v = sh_line("ls '%s' | grep -c '^v3r.db'", dir);
+	assert_string_equal(v, "1");   /* no -wal, -shm or -reserve beside it */
+	free(v);
+	free(before);
+	free(after);
+	free(db);
+}
+
+/* A session whose planned trials are all stored is complete without store_session_end;
+ * repeats do not count towards the plan. */
+static void store_testCompleteWhenPlanDone(void **state)
+{
+	(void)state;
+	struct protocol p;
+	struct protocol_block blocks[2];
+	struct stimlist l;
+	struct stim items[2];
+	make_protocol(&p, blocks);
+	make_list(&l, items);
+	char *db = path_in("plan.db");
+	struct store *s = NULL;
+	char *err = NULL;
+	assert_int_equal(store_open(db, &s, &err), 0);
+	struct store_session ss = {0};
+	ss.subject = xstrdup("Plan1");
+	ss.planned_trials = 4;
+	assert_int_equal(store_session_begin(s, &ss, &err), 0);
+	/* trials 0..4, of which trial 4 repeats trial 1: the plan is done at trial 4's... no,
+	 * at the fourth trial that is not a repeat, which is trial 3. */
+	int64_t flips[1] = {1};
+	struct store_session got;
+	for (int i = 0; i < 5; i++) {
+		struct trial_record t = make_trial(i, flips, 1);
+		assert_int_equal(store_trial_put(s, ss.id, &t, &p, &l, &err), 0);
+		assert_int_equal(store_session_get(s, ss.id, &got, &err), 0);
+		assert_int_equal(got.status, i < 3 ? STORE_RUNNING : STORE_COMPLETE);
+		if (i >= 3)
+			assert_non_null(got.ended_utc);
+		store_session_clear(&got);
+	}
+	store_session_clear(&ss);
+	store_close(s);
+	free(db);
+}
+
+/* Pooling a damaged source names the source, not the target (issue 16 item 14). */
+static void store_testPoolDamagedSource(void **state)
+{
+	(void)state;
+	struct protocol p;
+	struct protocol_block blocks[2];
+	struct stimlist l;
+	struct stim items[2];
+	make_protocol(&p, blocks);
+	make_list(&l, items);
+	struct store_session a, b;
+	struct store *sa = open_with_session("dmg_src.db", "Dmg1", &a);
+	for (int k = 0; k < 60; k++)   /* enough pages that damage lands inside a table */
+		put_trials(sa, a.id, 5 * k, 5 * k + 5, &p, &l);
+	store_close(sa);
+	char *src = path_in("dmg_src.db");
+	/* Overwrite pages 3 onwards with garbage, keeping the header page intact. */
+	char *v = sh_line("sqlite3 '%s' 'PRAGMA wal_checkpoint(TRUNCATE); PRAGMA journal_mode = "
+			  "DELETE' >/dev/null && dd if=/dev/urandom of='%s' bs=4096 seek=2 count=20 "
+			  "conv=notrunc 2>/dev/null && echo done", src, src);
+	assert_string_equal(v, "done");
+	free(v);
+	struct store *sb = open_with_session("dmg_tgt.db", "Dmg2", &b);
+	struct store_pool_stats st;
+	char *err = NULL;
+	assert_int_equal(store_pool_from(sb, src, &st, &err), -1);
+	assert_non_null(err);
+	assert_non_null(strstr(err, src));
+	assert_non_null(strstr(err, "damaged"));
+	assert_null(strstr(err, "dmg_tgt.db"));
+	free(err);
+	store_close(sb);
+	free(src);
+	store_session_clear(&a);
+	store_session_clear(&b);
+}
+
+/* Every column of both tables has a type with a SQLite and a PostgreSQL name, unique names and
+ * a description; the PostgreSQL names are the ones the pool target's schema will use
+ * (PostgreSQL documentation, "Data Types": bigint, timestamptz, uuid, jsonb). */
+static void store_testColumnTables(void **state)
+{
+	(void)state;
+	const struct store_table *tabs[2] = {&store_sessions_table, &store_trials_table};
+	for (int k = 0; k < 2; k++)
+		for (size_t i = 0; i < tabs[k]->ncols; i++) {
+			const struct store_column *c = &tabs[k]->cols[i];
+			assert_non_null(store_type_sql(c->type, false));
+			assert_non_null(store_type_sql(c->type, true));
+			assert_true(c->description && c->description[0]);
+			assert_true((c->off == STORE_NO_FIELD) == (c->type == STORE_JSON));
+			for (size_t j = 0; j < i; j++)
+				assert_string_not_equal(c->name, tabs[k]->cols[j].name);
+		}
+	assert_string_equal(store_type_sql(STORE_INT64, true), "bigint");
+	assert_string_equal(store_type_sql(STORE_TIME, true), "timestamptz");
+	assert_string_equal(store_type_sql(STORE_UUID, true), "uuid");
+	assert_string_equal(store_type_sql(STORE_BOOL, true), "boolean");
+	assert_string_equal(store_type_sql(STORE_REAL, false), "REAL");
+	assert_string_equal(store_status_name(STORE_ENDED_EARLY), "ended-early");
+	enum store_status st;
+	assert_int_equal(store_status_parse("ended-early", &st), 0);
+	assert_int_equal(st, STORE_ENDED_EARLY);
+}
+
 /* describe copies what protocol, list and rig say. */
 static void store_testDescribe(void **state)
 {
@@ -1022,6 +1327,14 @@ int main(void)
 		cmocka_unit_test(store_testMergeTwiceAddsNothing),
 		cmocka_unit_test(store_testMigrateV1),
 		cmocka_unit_test(store_testDescribe),
+		cmocka_unit_test(store_testForeignUntouched),
+		cmocka_unit_test(store_testApplicationId),
+		cmocka_unit_test(store_testConcurrentCreate),
+		cmocka_unit_test(store_testMigrateV3),
+		cmocka_unit_test(store_testReaderNeverWrites),
+		cmocka_unit_test(store_testCompleteWhenPlanDone),
+		cmocka_unit_test(store_testPoolDamagedSource),
+		cmocka_unit_test(store_testColumnTables),
 	};
 	return cmocka_run_group_tests(tests, setup, teardown);
 }

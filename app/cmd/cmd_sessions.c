@@ -74,12 +74,6 @@ int cmd_sessions(int argc, char **argv)
 		free(err);
 		return EXIT_PROBLEMS;
 	}
-	/* A session whose process on this host is gone shows as interrupted at once. A read-only
-	 * database cannot be updated; the list then shows what is stored. */
-	if (store_recover(s, NULL, &err)) {
-		free(err);
-		err = NULL;
-	}
 	struct store_session *v;
 	size_t n;
 	if (store_sessions_list(s, subject, &v, &n, &err)) {
@@ -88,6 +82,11 @@ int cmd_sessions(int argc, char **argv)
 		store_close(s);
 		return EXIT_PROBLEMS;
 	}
+	/* A session whose process on this host is gone shows as interrupted at once (the next
+	 * run records it so; listing never writes). */
+	for (size_t i = 0; i < n; i++)
+		if (store_session_orphaned(&v[i]))
+			v[i].status = STORE_INTERRUPTED;
 	if (json) {
 		cJSON *doc = cJSON_CreateObject();
 		cJSON_AddStringToObject(doc, "db", db);

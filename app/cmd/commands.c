@@ -91,11 +91,11 @@ static const struct cmd commands[] = {
 	 "(size, grey levels, luminance and contrast, near duplicates), controls writes matched "
 	 "control images.",
 	 NULL, cmd_stimuli},
-	{"merge", "pool databases from several rigs into one",
-	 "tachist merge --into FILE DB...\n",
+	{"pool", "pool databases from several rigs into one",
+	 "tachist pool --into FILE DB...\n",
 	 "Copies every session of each DB into FILE, which is created when missing; a session "
 	 "already there is not copied twice.",
-	 NULL, cmd_merge},
+	 NULL, cmd_pool},
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
 	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n"
 	 "             [--subject ID] [--seed N] [--resume SESSION] [--window] [--inject-drops RATE]\n"
@@ -283,7 +283,7 @@ void cmd_print_man(FILE *out)
 	      "(or\n.IR ~/.config/tachist/rig.ini ),\n"
 	      "falling back to the demo rig with a warning.\n"
 	      ".TP\n.B NO_COLOR\nThe console uses no colours when it is set.\n"
-	      ".TP\n.B TMPDIR\nWhere temporary copies are made (merge).\n"
+	      ".TP\n.B TMPDIR\nWhere temporary copies are made (pool).\n"
 	      ".SH FILES\n"
 	      ".TP\n.I tachist.db\nThe default database, in the current folder.\n"
 	      ".SH SEE ALSO\n"

@@ -49,6 +49,11 @@ int main(int argc, char **argv)
 		return EXIT_OK;
 	}
 	const struct cmd *c = cmd_find(argv[1]);
+	if (!c && !strcmp(argv[1], "merge")) {
+		fprintf(stderr, "tachist: there is no command 'merge'; pooling databases is "
+			"'tachist pool --into FILE DB...'\n");
+		return EXIT_USAGE;
+	}
 	if (!c) {
 		fprintf(stderr, "tachist: unknown command '%s'\n\n", argv[1]);
 		print_help(stderr);

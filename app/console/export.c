@@ -42,7 +42,7 @@ static const struct console_key export_keys[] = {
 static const char *const format_names[] = {
 	[EXPORT_CSV] = "CSV (comma-separated, RFC 4180)",
 	[EXPORT_TSV] = "TSV (tab-separated)",
-	[EXPORT_JSON] = "JSON (one array of trial objects)",
+	[EXPORT_JSON] = "JSON (sessions and one object per trial)",
 	[EXPORT_BIDS] = "BIDS behavioural dataset (a folder)",
 };
 static const char *const format_ext[] = {

@@ -55,7 +55,8 @@ static struct store_session *row(struct sessions *s, size_t i)
 
 static bool resumable(const struct store_session *ss)
 {
-	return ss->status == STORE_INTERRUPTED || ss->status == STORE_ABORTED;
+	return ss->status == STORE_INTERRUPTED || ss->status == STORE_ABORTED ||
+	       ss->status == STORE_ENDED_EARLY;
 }
 
 static void sessions_draw(struct console *c, void *st)

@@ -63,7 +63,8 @@ static void read_db(struct console *c, struct welcome *w)
 	} else {
 		size_t open = 0;
 		for (size_t i = 0; i < n; i++)
-			open += v[i].status == STORE_INTERRUPTED || v[i].status == STORE_ABORTED;
+			open += v[i].status == STORE_INTERRUPTED || v[i].status == STORE_ABORTED ||
+				v[i].status == STORE_ENDED_EARLY;
 		snprintf(w->db_note, sizeof w->db_note, "%zu session%s stored", n, n == 1 ? "" : "s");
 		if (open) {
 			size_t len = strlen(w->db_note);

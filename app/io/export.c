@@ -1,13 +1,18 @@
 /* export — trial tables out of the store (see export.h).
  *
- * Each row is built in a small growing buffer and written with one fwrite, so the cost per row is
- * the store's step plus the formatting; the buffer is the only memory that lives across rows.
- * Column order is a contract (docs/design.md): the standard columns up to `source`, then the label columns
- * (the union over the exported sessions, in order of first appearance), then the rest. A label
- * whose name equals a standard column is written as `label_<name>`.
+ * Every writer walks one list of output columns built from the store's column tables
+ * (store.h): the session columns marked for every row, then the exported trial columns in
+ * table order with the stimulus list's label columns (the union over the exported sessions, in
+ * order of first appearance) after `source`. A label whose name equals a column is written as
+ * `label_<name>`. Values are formatted by column type: indices kept from 0 are written from 1,
+ * numbers in the shortest text that reads back to the same double. So a new column in the
+ * table appears in CSV, TSV, JSON and BIDS (with its sidecar description) without an edit here.
  *
- * Called by `tachist export` and the console's export screen. */
+ * Each row is built in a small growing buffer and written with one fwrite, so the cost per row
+ * is the store's step plus the formatting; the buffer is the only memory that lives across
+ * rows. Called by `tachist export` and the console's export screen. */
 #include <errno.h>
+#include <stdint.h>
 #include <inttypes.h>
 #include <math.h>
 #include <stdlib.h>
@@ -58,10 +63,12 @@ static void buf_chr(struct buf *b, char c)
 	b->p[b->n++] = c;
 }
 
-static void buf_int(struct buf *b, int64_t v)
+/* Decimal text of V at the end of TMP (48 bytes); returns its start. Faster than printf, which
+ * matters at millions of cells. */
+static const char *int_text(char tmp[48], int64_t v)
 {
-	char tmp[24];
-	char *e = tmp + sizeof tmp, *q = e;
+	char *q = tmp + 47;
+	*q = '\0';
 	uint64_t u = v < 0 ? (uint64_t)0 - (uint64_t)v : (uint64_t)v;
 	do {
 		*--q = (char)('0' + u % 10);
@@ -69,7 +76,7 @@ static void buf_int(struct buf *b, int64_t v)
 	} while (u);
 	if (v < 0)
 		*--q = '-';
-	buf_put(b, q, (size_t)(e - q));
+	return q;
 }
 
 void export_number(char *buf, size_t len, double v)
@@ -79,23 +86,20 @@ void export_number(char *buf, size_t len, double v)
 		return;
 	}
 	if (v == floor(v) && fabs(v) < 1e15) {
-		snprintf(buf, len, "%.0f", v);
+		char tmp[48];
+		snprintf(buf, len, "%s", int_text(tmp, (int64_t)v));
+		if (v == 0 && signbit(v))
+			snprintf(buf, len, "-0");
 		return;
 	}
-	/* 15 significant digits reads back exactly for most values; 17 always does (IEEE 754
-	 * binary64 needs at most 17 decimal digits to round-trip). */
+	/* The shortest: any decimal of 15 or fewer significant digits survives a round trip
+	 * through binary64 (DBL_DIG, C11 5.2.4.2.2), so when 15 digits read back exactly no
+	 * shorter text could differ; 17 always read back (IEEE 754-2008 section 5.12.2). */
 	for (int prec = 15; prec <= 17; prec++) {
 		snprintf(buf, len, "%.*g", prec, v);
 		if (strtod(buf, NULL) == v)
 			return;
 	}
-}
-
-static void buf_num(struct buf *b, double v)
-{
-	char tmp[40];
-	export_number(tmp, sizeof tmp, v);
-	buf_str(b, tmp);
 }
 
 /* OWASP "CSV Injection": cells starting with these are formulas to a spreadsheet. */
@@ -148,42 +152,39 @@ int export_format_parse(const char *name, enum export_format *out)
 	return -1;
 }
 
-/* ---- columns ---- */
+/* ---- output columns ---- */
 
-static const char *const head_cols[] = {
-	"session_id", "subject", "block", "block_trial", "trial", "image", "category", "level",
-	"source",
+/* One column of an exported table: a session column, a trial column or a label. */
+struct outcol {
+	const char *name;                 /* header (borrowed from the tables or from labels) */
+	const struct store_column *col;   /* NULL for a label column */
+	bool session;                     /* the value comes from the session row */
+	size_t label;                     /* label index when COL is NULL */
 };
-static const char *const tail_cols[] = {
-	"response_key", "response", "correct", "rt_ms", "timed_out", "frames_planned",
-	"frames_actual", "dropped_frames", "timing_ok", "onset_ns", "staircase",
-};
-#define NHEAD (sizeof head_cols / sizeof head_cols[0])
-#define NTAIL (sizeof tail_cols / sizeof tail_cols[0])
 
+struct layout {
+	struct outcol *v;
+	size_t n;
+	char **labels;                    /* label headers */
+	size_t nl;
+};
+
+static const char *const bids_own[] = {"onset", "duration", "response_time"};
+
+/* True when NAME is the header of an exported column (a label of that name is renamed). */
 static bool is_standard(const char *name)
 {
-	static const char *const more[] = {"onset", "duration", "trial_type", "stim_file",
-					   "response_time"};
-	for (size_t i = 0; i < NHEAD; i++)
-		if (!strcmp(name, head_cols[i]))
-			return true;
-	for (size_t i = 0; i < NTAIL; i++)
-		if (!strcmp(name, tail_cols[i]))
-			return true;
-	for (size_t i = 0; i < sizeof more / sizeof more[0]; i++)
-		if (!strcmp(name, more[i]))
+	const struct store_table *tabs[] = {&store_sessions_table, &store_trials_table};
+	for (size_t k = 0; k < 2; k++)
+		for (size_t i = 0; i < tabs[k]->ncols; i++) {
+			const char *e = tabs[k]->cols[i].export_name;
+			if (e && !strcmp(e, name))
+				return true;
+		}
+	for (size_t i = 0; i < sizeof bids_own / sizeof bids_own[0]; i++)
+		if (!strcmp(name, bids_own[i]))
 			return true;
 	return false;
-}
-
-/* Header names of the label columns (malloc'd vector of malloc'd strings). */
-static char **label_headers(const char *const *names, size_t n)
-{
-	char **v = xcalloc(n ? n : 1, sizeof *v);
-	for (size_t i = 0; i < n; i++)
-		v[i] = is_standard(names[i]) ? xasprintf("label_%s", names[i]) : xstrdup(names[i]);
-	return v;
 }
 
 static void free_vec(char **v, size_t n)
@@ -191,6 +192,81 @@ static void free_vec(char **v, size_t n)
 	for (size_t i = 0; i < n; i++)
 		free(v[i]);
 	free(v);
+}
+
+static void layout_add(struct layout *L, const char *name, const struct store_column *c,
+		       bool session, size_t label)
+{
+	L->v = xrealloc(L->v, (L->n + 1) * sizeof *L->v);
+	L->v[L->n++] = (struct outcol){name, c, session, label};
+}
+
+/* The exported columns in order, with the label columns NAMES after `source`. */
+static void layout_build(struct layout *L, const char *const *names, size_t nl)
+{
+	memset(L, 0, sizeof *L);
+	L->nl = nl;
+	L->labels = xcalloc(nl ? nl : 1, sizeof *L->labels);
+	for (size_t i = 0; i < nl; i++)
+		L->labels[i] = is_standard(names[i]) ? xasprintf("label_%s", names[i])
+						     : xstrdup(names[i]);
+	const struct store_table *st = &store_sessions_table, *tt = &store_trials_table;
+	for (size_t i = 0; i < st->ncols; i++)
+		if (st->cols[i].flags & STORE_COL_ROW)
+			layout_add(L, st->cols[i].export_name, &st->cols[i], true, 0);
+	for (size_t i = 0; i < tt->ncols; i++) {
+		const struct store_column *c = &tt->cols[i];
+		if (!c->export_name)
+			continue;
+		layout_add(L, c->export_name, c, false, 0);
+		if (c->flags & STORE_COL_LABELS_AFTER)
+			for (size_t k = 0; k < nl; k++)
+				layout_add(L, L->labels[k], NULL, false, k);
+	}
+}
+
+static void layout_free(struct layout *L)
+{
+	free(L->v);
+	free_vec(L->labels, L->nl);
+}
+
+/* The value of column O on trial T of session SS. */
+static void cell_value(const struct outcol *o, const struct store_trial *t,
+		       const struct store_session *ss, struct store_value *v)
+{
+	if (!o->col) {
+		memset(v, 0, sizeof *v);
+		v->s = o->label < t->nlabels ? t->label_values[o->label] : NULL;
+		v->missing = !v->s;
+		return;
+	}
+	store_column_value(o->col, o->session ? (const void *)ss : (const void *)t, v);
+}
+
+/* Text of a present value V of column C (NULL = a label, text): numbers are formatted into
+ * TMP, text is borrowed. *IS_TEXT says which; a number that is not finite gives NULL. */
+static const char *value_text(const struct store_column *c, const struct store_value *v,
+			      char tmp[48], bool *is_text)
+{
+	*is_text = false;
+	switch (c ? c->type : STORE_TEXT) {
+	case STORE_INT:
+	case STORE_INT64:
+	case STORE_BOOL:
+		return int_text(tmp, v->i + ((c->flags & STORE_COL_ONE_BASED) ? 1 : 0));
+	case STORE_SEED:
+		snprintf(tmp, 48, "%" PRIu64, (uint64_t)v->i);
+		return tmp;
+	case STORE_REAL:
+		if (!isfinite(v->r))
+			return NULL;
+		export_number(tmp, 48, v->r);
+		return tmp;
+	default:
+		*is_text = true;
+		return v->s;
+	}
 }
 
 static int write_buf(struct buf *b, FILE *out, char **err)
@@ -208,138 +284,97 @@ static int write_buf(struct buf *b, FILE *out, char **err)
 
 /* ---- CSV and TSV ---- */
 
-static void delimited_row(struct buf *b, const struct store_trial *t, char d, const char *eol)
+static void delimited_row(struct buf *b, const struct layout *L, const struct store_trial *t,
+			  const struct store_session *ss, char d, const char *eol)
 {
-	const bool z = true;   /* neutralise text cells */
-	buf_cell(b, t->session_id, d, z);
-	buf_chr(b, d);
-	buf_cell(b, t->subject, d, z);
-	buf_chr(b, d);
-	buf_int(b, t->block);
-	buf_chr(b, d);
-	buf_int(b, t->block_trial);
-	buf_chr(b, d);
-	buf_int(b, t->trial);
-	buf_chr(b, d);
-	buf_cell(b, t->image, d, z);
-	buf_chr(b, d);
-	buf_cell(b, t->category, d, z);
-	buf_chr(b, d);
-	if (t->has_level)
-		buf_num(b, t->level);
-	buf_chr(b, d);
-	buf_cell(b, t->source, d, z);
-	for (size_t k = 0; k < t->nlabels; k++) {
-		buf_chr(b, d);
-		buf_cell(b, t->label_values[k], d, z);
+	for (size_t i = 0; i < L->n; i++) {
+		if (i)
+			buf_chr(b, d);
+		struct store_value v;
+		cell_value(&L->v[i], t, ss, &v);
+		if (v.missing)
+			continue;   /* missing values are empty cells */
+		char tmp[48];
+		bool text;
+		const char *s = value_text(L->v[i].col, &v, tmp, &text);
+		if (text)
+			buf_cell(b, s, d, true);
+		else if (s)
+			buf_str(b, s);
 	}
-	buf_chr(b, d);
-	buf_cell(b, t->response_key, d, z);
-	buf_chr(b, d);
-	buf_cell(b, t->response_category, d, z);
-	buf_chr(b, d);
-	if (t->correct >= 0)
-		buf_int(b, t->correct);
-	buf_chr(b, d);
-	if (t->has_rt)
-		buf_num(b, t->rt_ms);
-	buf_chr(b, d);
-	buf_int(b, t->timed_out);
-	buf_chr(b, d);
-	buf_int(b, t->frames_planned);
-	buf_chr(b, d);
-	buf_int(b, t->frames_actual);
-	buf_chr(b, d);
-	buf_int(b, t->dropped_frames);
-	buf_chr(b, d);
-	buf_int(b, t->timing_ok);
-	buf_chr(b, d);
-	buf_int(b, t->onset_ns);
-	buf_chr(b, d);
-	if (t->staircase >= 0)
-		buf_int(b, t->staircase);
 	buf_str(b, eol);
 }
 
-static void delimited_header(struct buf *b, char **labels, size_t nl, char d, const char *eol)
+static void delimited_header(struct buf *b, const struct layout *L, char d, const char *eol)
 {
-	for (size_t i = 0; i < NHEAD; i++) {
+	for (size_t i = 0; i < L->n; i++) {
 		if (i)
 			buf_chr(b, d);
-		buf_str(b, head_cols[i]);
-	}
-	for (size_t i = 0; i < nl; i++) {
-		buf_chr(b, d);
-		buf_cell(b, labels[i], d, true);
-	}
-	for (size_t i = 0; i < NTAIL; i++) {
-		buf_chr(b, d);
-		buf_str(b, tail_cols[i]);
+		buf_cell(b, L->v[i].name, d, true);
 	}
 	buf_str(b, eol);
 }
 
 /* ---- JSON ---- */
 
-static void json_add_text(cJSON *o, const char *k, const char *v)
+/* Adds value V of column C (NULL = a label) to object O under K: null when missing, a string
+ * for text and for the 64-bit seed (beyond a double's exact range), else a number written as
+ * exact decimal text. */
+static void json_add_value(cJSON *o, const char *k, const struct store_column *c,
+			   const struct store_value *v)
 {
-	if (v)
-		cJSON_AddStringToObject(o, k, v);
+	char tmp[48];
+	bool text;
+	const char *s = v->missing ? NULL : value_text(c, v, tmp, &text);
+	if (!s)
+		cJSON_AddNullToObject(o, k);
+	else if (text || (c && c->type == STORE_SEED))
+		cJSON_AddStringToObject(o, k, s);
 	else
-		cJSON_AddNullToObject(o, k);
+		cJSON_AddRawToObject(o, k, s);
 }
 
-/* int64 as its exact decimal text (a JSON number; cJSON's doubles would round above 2^53). */
-static void json_add_int(cJSON *o, const char *k, int64_t v)
-{
-	char tmp[24];
-	snprintf(tmp, sizeof tmp, "%" PRId64, v);
-	cJSON_AddRawToObject(o, k, tmp);
-}
-
-static void json_add_num(cJSON *o, const char *k, bool has, double v)
-{
-	if (!has || !isfinite(v)) {
-		cJSON_AddNullToObject(o, k);
-		return;
-	}
-	char tmp[40];
-	export_number(tmp, sizeof tmp, v);
-	cJSON_AddRawToObject(o, k, tmp);
-}
-
-static cJSON *json_row(const struct store_trial *t, char **labels)
+static cJSON *json_row(const struct layout *L, const struct store_trial *t,
+		       const struct store_session *ss)
 {
 	cJSON *o = cJSON_CreateObject();
-	json_add_text(o, "session_id", t->session_id);
-	json_add_text(o, "subject", t->subject);
-	json_add_int(o, "block", t->block);
-	json_add_int(o, "block_trial", t->block_trial);
-	json_add_int(o, "trial", t->trial);
-	json_add_text(o, "image", t->image);
-	json_add_text(o, "category", t->category);
-	json_add_num(o, "level", t->has_level, t->level);
-	json_add_text(o, "source", t->source);
-	for (size_t k = 0; k < t->nlabels; k++)
-		json_add_text(o, labels[k], t->label_values[k]);
-	json_add_text(o, "response_key", t->response_key);
-	json_add_text(o, "response", t->response_category);
-	if (t->correct >= 0)
-		json_add_int(o, "correct", t->correct);
-	else
-		cJSON_AddNullToObject(o, "correct");
-	json_add_num(o, "rt_ms", t->has_rt, t->rt_ms);
-	json_add_int(o, "timed_out", t->timed_out);
-	json_add_int(o, "frames_planned", t->frames_planned);
-	json_add_int(o, "frames_actual", t->frames_actual);
-	json_add_int(o, "dropped_frames", t->dropped_frames);
-	json_add_int(o, "timing_ok", t->timing_ok);
-	json_add_int(o, "onset_ns", t->onset_ns);
-	if (t->staircase >= 0)
-		json_add_int(o, "staircase", t->staircase);
-	else
-		cJSON_AddNullToObject(o, "staircase");
+	for (size_t i = 0; i < L->n; i++) {
+		struct store_value v;
+		cell_value(&L->v[i], t, ss, &v);
+		json_add_value(o, L->v[i].name, L->v[i].col, &v);
+	}
 	return o;
+}
+
+/* The session's metadata: every session column marked STORE_COL_META, by exported name. */
+static cJSON *json_session(const struct store_session *ss)
+{
+	cJSON *o = cJSON_CreateObject();
+	const struct store_table *t = &store_sessions_table;
+	for (size_t i = 0; i < t->ncols; i++) {
+		const struct store_column *c = &t->cols[i];
+		if (!(c->flags & STORE_COL_META))
+			continue;
+		struct store_value v;
+		store_column_value(c, ss, &v);
+		json_add_value(o, c->export_name, c, &v);
+	}
+	return o;
+}
+
+static void json_sessions(struct buf *b, struct store_iter *it)
+{
+	size_t n;
+	const struct store_session *v = store_iter_sessions(it, &n);
+	cJSON *a = cJSON_CreateArray();
+	for (size_t i = 0; i < n; i++)
+		cJSON_AddItemToArray(a, json_session(&v[i]));
+	char *txt = cJSON_PrintUnformatted(a);
+	cJSON_Delete(a);
+	buf_str(b, "{\"sessions\": ");
+	buf_str(b, txt);
+	buf_str(b, ",\n\"trials\": [");
+	cJSON_free(txt);
 }
 
 /* ---- tables ---- */
@@ -358,7 +393,8 @@ int export_table(struct store *s, enum export_format f, const char *session, con
 		return -1;
 	size_t nl;
 	const char *const *names = store_iter_label_names(it, &nl);
-	char **labels = label_headers(names, nl);
+	struct layout L;
+	layout_build(&L, names, nl);
 	char d = f == EXPORT_TSV ? '\t' : ',';
 	/* RFC 4180 section 2 rule 1: records end with CRLF. TSV (IANA text/tab-separated-values)
 	 * lines end with LF. */
@@ -366,9 +402,9 @@ int export_table(struct store *s, enum export_format f, const char *session, con
 	struct buf b = {0};
 	int ret = -1;
 	if (f == EXPORT_JSON)
-		buf_str(&b, "[");
+		json_sessions(&b, it);
 	else
-		delimited_header(&b, labels, nl, d, eol);
+		delimited_header(&b, &L, d, eol);
 	const struct store_trial *t;
 	const struct store_session *cur = NULL, *ss;
 	int rc;
@@ -378,14 +414,14 @@ int export_table(struct store *s, enum export_format f, const char *session, con
 			cur = ss;
 		}
 		if (f == EXPORT_JSON) {
-			cJSON *o = json_row(t, labels);
+			cJSON *o = json_row(&L, t, ss);
 			char *txt = cJSON_PrintUnformatted(o);
 			cJSON_Delete(o);
 			buf_str(&b, stats.rows ? ",\n" : "\n");
 			buf_str(&b, txt);
 			cJSON_free(txt);
 		} else {
-			delimited_row(&b, t, d, eol);
+			delimited_row(&b, &L, t, ss, d, eol);
 		}
 		stats.rows++;
 		if (b.n >= 65536 && write_buf(&b, out, err))
@@ -394,7 +430,7 @@ int export_table(struct store *s, enum export_format f, const char *session, con
 	if (rc < 0)
 		goto done;
 	if (f == EXPORT_JSON)
-		buf_str(&b, stats.rows ? "\n]\n" : "]\n");
+		buf_str(&b, stats.rows ? "\n]}\n" : "]}\n");
 	if (write_buf(&b, out, err))
 		goto done;
 	if (fflush(out)) {
@@ -405,7 +441,7 @@ int export_table(struct store *s, enum export_format f, const char *session, con
 	ret = 0;
 done:
 	free(b.p);
-	free_vec(labels, nl);
+	layout_free(&L);
 	store_iter_close(it);
 	if (st)
 		*st = stats;
@@ -492,18 +528,17 @@ static int write_json_file(const char *path, cJSON *doc, char **err)
 	return rc;
 }
 
-static void column(cJSON *doc, const char *name, const char *desc, const char *units)
+static cJSON *column(cJSON *doc, const char *name, const char *desc, const char *units)
 {
 	cJSON *c = cJSON_AddObjectToObject(doc, name);
 	cJSON_AddStringToObject(c, "Description", desc);
 	if (units)
 		cJSON_AddStringToObject(c, "Units", units);
+	return c;
 }
 
-static void levels_from(cJSON *doc, const char *name, const char *const *values, size_t n,
-			const char *what)
+static void levels_from(cJSON *c, const char *const *values, size_t n, const char *what)
 {
-	cJSON *c = cJSON_GetObjectItemCaseSensitive(doc, name);
 	if (!c || !n)
 		return;
 	cJSON *lv = cJSON_AddObjectToObject(c, "Levels");
@@ -516,9 +551,8 @@ static void levels_from(cJSON *doc, const char *name, const char *const *values,
 	}
 }
 
-static void levels_binary(cJSON *doc, const char *name, const char *one, const char *zero)
+static void levels_binary(cJSON *c, const char *one, const char *zero)
 {
-	cJSON *c = cJSON_GetObjectItemCaseSensitive(doc, name);
 	cJSON *lv = cJSON_AddObjectToObject(c, "Levels");
 	cJSON_AddStringToObject(lv, "1", one);
 	cJSON_AddStringToObject(lv, "0", zero);
@@ -547,15 +581,30 @@ static void seen_add(struct seen *s, const char *v)
 	s->v[s->n++] = xstrdup(v);
 }
 
-static const char bids_eol[] = "\n";
-
-static void bids_cell_text(struct buf *b, const char *v)
+/* A text cell of a BIDS table: one physical line whatever it holds. The IANA definition of
+ * text/tab-separated-values allows no tab inside a field and BIDS forbids CSV quoting in its
+ * tables, so tab, newline, carriage return and backslash are written as the two-character
+ * escapes \t \n \r \\ (the usual TSV escape convention; the sidecar says so). */
+static void bids_text(struct buf *b, const char *v)
 {
-	buf_chr(b, '\t');
-	if (v)
-		buf_cell(b, v, '\t', false);
-	else
-		buf_str(b, "n/a");   /* BIDS "Tabular files": missing values are n/a */
+	for (const char *c = v; *c; c++) {
+		switch (*c) {
+		case '\t':
+			buf_str(b, "\\t");
+			break;
+		case '\n':
+			buf_str(b, "\\n");
+			break;
+		case '\r':
+			buf_str(b, "\\r");
+			break;
+		case '\\':
+			buf_str(b, "\\\\");
+			break;
+		default:
+			buf_chr(b, *c);
+		}
+	}
 }
 
 /* Seconds from nanosecond clocks: nine decimals at most (the clocks' resolution), trailing zeros
@@ -574,79 +623,82 @@ static void buf_seconds(struct buf *b, double v)
 	buf_str(b, tmp);
 }
 
-static void bids_cell_seconds(struct buf *b, bool has, double v)
+static void bids_seconds(struct buf *b, bool has, double v)
 {
-	buf_chr(b, '\t');
 	if (has && isfinite(v))
 		buf_seconds(b, v);
 	else
-		buf_str(b, "n/a");
+		buf_str(b, "n/a");   /* BIDS "Tabular files": missing values are n/a */
 }
 
-static void bids_cell_num(struct buf *b, bool has, double v)
+/* One _beh.tsv row: BIDS's own onset, duration and response_time, then the exported columns. */
+static void bids_row(struct buf *b, const struct layout *L, const struct store_trial *t,
+		     const struct store_session *ss, int64_t t0, struct seen *seen)
 {
+	bool timed = t->onset_ns != 0;
+	bids_seconds(b, timed, (double)(t->onset_ns - t0) / 1e9);
 	buf_chr(b, '\t');
-	if (has && isfinite(v))
-		buf_num(b, v);
-	else
-		buf_str(b, "n/a");
+	bids_seconds(b, timed && t->offset_ns > t->onset_ns,
+		     (double)(t->offset_ns - t->onset_ns) / 1e9);
+	buf_chr(b, '\t');
+	bids_seconds(b, t->has_rt, t->rt_ms / 1000.0);
+	for (size_t i = 0; i < L->n; i++) {
+		buf_chr(b, '\t');
+		struct store_value v;
+		cell_value(&L->v[i], t, ss, &v);
+		if (!L->v[i].col)
+			seen_add(&seen[L->v[i].label], v.s);
+		char tmp[48];
+		bool text;
+		const char *s = v.missing ? NULL : value_text(L->v[i].col, &v, tmp, &text);
+		if (!s)
+			buf_str(b, "n/a");
+		else if (text)
+			bids_text(b, s);
+		else
+			buf_str(b, s);
+	}
+	buf_chr(b, '\n');
 }
 
-static void bids_cell_int(struct buf *b, bool has, int64_t v)
+/* Describes column O of the _beh.tsv in DOC, with levels where the values are few. */
+static void sidecar_column(cJSON *doc, const struct outcol *o, struct seen *seen,
+			   const char *const *choices, size_t nch)
 {
-	buf_chr(b, '\t');
-	if (has)
-		buf_int(b, v);
-	else
-		buf_str(b, "n/a");
+	if (!o->col) {
+		cJSON *c = column(doc, o->name, "Label column carried over from the stimulus list",
+				  NULL);
+		if (!seen[o->label].many && seen[o->label].n)
+			levels_from(c, (const char *const *)seen[o->label].v, seen[o->label].n,
+				    "value");
+		return;
+	}
+	cJSON *c = column(doc, o->name, o->col->description, o->col->units);
+	if (o->col->type == STORE_BOOL)
+		levels_binary(c, "yes", "no");
+	else if (!strcmp(o->col->name, "correct"))
+		levels_binary(c, "correct", "incorrect");
+	else if (!strcmp(o->col->name, "category"))
+		levels_from(c, choices, nch, "category");
+	else if (!strcmp(o->col->name, "response_category"))
+		levels_from(c, choices, nch, "chose category");
 }
 
-/* The sidecar: column descriptions with units and levels, then the presentation settings. */
-static cJSON *bids_sidecar(const struct store_session *ss, const char *task, char **labels,
-			   size_t nl, struct seen *seen, const char *const *choices, size_t nch)
+/* The sidecar: every column described, the presentation settings, the session's metadata. */
+static cJSON *bids_sidecar(const struct store_session *ss, const char *task,
+			   const struct layout *L, struct seen *seen, const char *const *choices,
+			   size_t nch)
 {
 	cJSON *doc = cJSON_CreateObject();
 	cJSON_AddStringToObject(doc, "TaskName", task);
 	column(doc, "onset", "Stimulus onset (first flip showing the image), from the first flip "
 	       "of the session's first trial", "s");
 	column(doc, "duration", "Stimulus exposure from its onset flip to its offset flip", "s");
-	column(doc, "trial_type", "True category of the image (the stimulus list's category)",
-	       NULL);
-	column(doc, "stim_file", "Image as written in the stimulus list (relative to the list "
-	       "file; images are not copied into this dataset)", NULL);
-	column(doc, "block", "Block index in the session plan, from 0", NULL);
-	column(doc, "block_trial", "Trial index within the block, from 0", NULL);
-	column(doc, "trial", "Trial index within the session, from 0, in the order shown", NULL);
-	column(doc, "level", "Graded variable of the image (for example a perturbation budget), "
-	       "as given in the stimulus list", "arbitrary");
-	column(doc, "source", "Clean image the shown one was made from, as in the stimulus list",
-	       NULL);
-	for (size_t i = 0; i < nl; i++) {
-		column(doc, labels[i], "Label column carried over from the stimulus list", NULL);
-		if (!seen[i].many && seen[i].n)
-			levels_from(doc, labels[i], (const char *const *)seen[i].v, seen[i].n,
-				    "value");
-	}
-	column(doc, "response_key", "Key the observer pressed (n/a when no answer)", NULL);
-	column(doc, "response", "Category the observer chose (n/a when no answer)", NULL);
-	column(doc, "correct", "Whether the chosen category was the true one (n/a when no answer)",
-	       NULL);
 	column(doc, "response_time", "Time from the stimulus onset flip to the key press", "s");
-	column(doc, "timed_out", "The response window closed without an answer", NULL);
-	column(doc, "frames_planned", "Stimulus frames planned", "frames");
-	column(doc, "frames_actual", "Stimulus frames shown, from the flip times", "frames");
-	column(doc, "dropped_frames", "Frames lost during the trial (an interval over 1.5 refresh "
-	       "periods)", "frames");
-	column(doc, "timing_ok", "Exposure exact and no frame dropped during the stimulus epochs",
-	       NULL);
-	column(doc, "staircase", "Adaptive staircase that chose the level (n/a for fixed levels)",
-	       NULL);
-	levels_from(doc, "trial_type", choices, nch, "category");
-	levels_from(doc, "response", choices, nch, "chose category");
-	levels_binary(doc, "correct", "correct", "incorrect");
-	levels_binary(doc, "timed_out", "no answer in the response window", "answered in time");
-	levels_binary(doc, "timing_ok", "exposure exact", "timing fault");
-
+	for (size_t i = 0; i < L->n; i++)
+		sidecar_column(doc, &L->v[i], seen, choices, nch);
+	cJSON_AddStringToObject(doc, "TextEscapes", "In text cells a tab, newline, carriage return "
+				"and backslash are written as \\t, \\n, \\r and \\\\");
 	/* Presentation settings (BIDS "Task" metadata, StimulusPresentation object: distances in
 	 * metres, resolution in pixels; field names recalled from the specification, v1.8+). */
 	cJSON *sp = cJSON_AddObjectToObject(doc, "StimulusPresentation");
@@ -665,107 +717,61 @@ static cJSON *bids_sidecar(const struct store_session *ss, const char *task, cha
 		double m[2] = {ss->screen_width_cm / 100.0, ss->screen_height_cm / 100.0};
 		cJSON_AddItemToObject(sp, "ScreenSize", cJSON_CreateDoubleArray(m, 2));
 	}
-	cJSON_AddStringToObject(doc, "TimingMode", ss->timing_mode ? ss->timing_mode : "unknown");
-	if (ss->refresh_hz > 0)
-		cJSON_AddNumberToObject(doc, "MeasuredRefreshRate", ss->refresh_hz);
-	if (ss->nominal_hz > 0)
-		cJSON_AddNumberToObject(doc, "NominalRefreshRate", ss->nominal_hz);
-	if (ss->stim_deg > 0)
-		cJSON_AddNumberToObject(doc, "StimulusSizeDegrees", ss->stim_deg);
-	cJSON_AddStringToObject(doc, "SessionID", ss->id);
-	cJSON_AddStringToObject(doc, "SessionStatus", store_status_name(ss->status));
-	if (ss->started_utc)
-		cJSON_AddStringToObject(doc, "SessionStart", ss->started_utc);
-	if (ss->ended_utc)
-		cJSON_AddStringToObject(doc, "SessionEnd", ss->ended_utc);
-	char seed[24];
-	snprintf(seed, sizeof seed, "%" PRIu64, ss->seed);
-	cJSON_AddStringToObject(doc, "Seed", seed);
-	if (ss->protocol_sha256[0])
-		cJSON_AddStringToObject(doc, "ProtocolSHA256", ss->protocol_sha256);
-	if (ss->stimuli_sha256[0])
-		cJSON_AddStringToObject(doc, "StimuliSHA256", ss->stimuli_sha256);
-	if (ss->observer)
-		cJSON_AddStringToObject(doc, "Observer", ss->observer);
+	cJSON_AddItemToObject(doc, "Session", json_session(ss));
 	return doc;
+}
+
+/* Opens the session's _beh.tsv; writes its header. */
+static FILE *bids_open(const char *tsv, const struct layout *L, struct buf *b, char **err)
+{
+	FILE *f = fopen(tsv, "w");
+	if (!f) {
+		if (err)
+			*err = xasprintf("%s: %s", tsv, strerror(errno));
+		return NULL;
+	}
+	/* BIDS "Tabular files": a header row, tab separated; onset and duration come first. */
+	buf_str(b, "onset\tduration\tresponse_time");
+	for (size_t i = 0; i < L->n; i++) {
+		buf_chr(b, '\t');
+		bids_text(b, L->v[i].name);
+	}
+	buf_chr(b, '\n');
+	return f;
 }
 
 /* One session's _beh.tsv (streamed) and its sidecar. */
 static int bids_session(struct store *s, const struct store_session *ss, const char *dir,
-			const char *sub, const char *ses, const char *task, size_t *rows,
-			char **err)
+			const char *ses, const char *task, size_t *rows, char **err)
 {
-	char *folder = xasprintf("%s/sub-%s/ses-%s/beh", dir, sub, ses);
-	char *base = xasprintf("%s/sub-%s_ses-%s_task-%s_beh", folder, sub, ses, task);
+	char *folder = xasprintf("%s/sub-%s/ses-%s/beh", dir, ss->subject, ses);
+	char *base = xasprintf("%s/sub-%s_ses-%s_task-%s_beh", folder, ss->subject, ses, task);
 	char *tsv = xasprintf("%s.tsv", base), *json = xasprintf("%s.json", base);
 	struct store_iter *it = NULL;
 	FILE *f = NULL;
-	char **labels = NULL;
-	size_t nl = 0;
+	struct layout L = {0};
 	struct seen *seen = NULL;
 	struct buf b = {0};
 	int ret = -1;
-	if (mkdirs(folder, err))
+	if (mkdirs(folder, err) || store_iter_open(s, ss->id, NULL, &it, err))
 		goto done;
-	if (store_iter_open(s, ss->id, NULL, &it, err))
-		goto done;
+	size_t nl;
 	const char *const *names = store_iter_label_names(it, &nl);
-	labels = label_headers(names, nl);
+	layout_build(&L, names, nl);
 	seen = xcalloc(nl ? nl : 1, sizeof *seen);
-	f = fopen(tsv, "w");
-	if (!f) {
-		if (err)
-			*err = xasprintf("%s: %s", tsv, strerror(errno));
+	if (!(f = bids_open(tsv, &L, &b, err)))
 		goto done;
-	}
-	/* BIDS "Tabular files": a header row, tab separated; onset and duration come first. */
-	buf_str(&b, "onset\tduration\ttrial_type\tstim_file\tblock\tblock_trial\ttrial\tlevel"
-		"\tsource");
-	for (size_t i = 0; i < nl; i++) {
-		buf_chr(&b, '\t');
-		buf_cell(&b, labels[i], '\t', false);
-	}
-	buf_str(&b, "\tresponse_key\tresponse\tcorrect\tresponse_time\ttimed_out\tframes_planned"
-		"\tframes_actual\tdropped_frames\ttiming_ok\tstaircase");
-	buf_str(&b, bids_eol);
 	const struct store_trial *t;
+	const struct store_session *cs;
 	bool first = true;
 	int64_t t0 = 0;
 	int rc;
-	while ((rc = store_iter_next(it, &t, NULL, err)) == 1) {
+	while ((rc = store_iter_next(it, &t, &cs, err)) == 1) {
 		if (first) {
 			t0 = t->start_ns ? t->start_ns : t->onset_ns;
 			first = false;
 		}
-		bool timed = t->onset_ns != 0;
-		if (timed)
-			buf_seconds(&b, (double)(t->onset_ns - t0) / 1e9);
-		else
-			buf_str(&b, "n/a");
-		bids_cell_seconds(&b, timed && t->offset_ns > t->onset_ns,
-				  (double)(t->offset_ns - t->onset_ns) / 1e9);
-		bids_cell_text(&b, t->category);
-		bids_cell_text(&b, t->image);
-		bids_cell_int(&b, true, t->block);
-		bids_cell_int(&b, true, t->block_trial);
-		bids_cell_int(&b, true, t->trial);
-		bids_cell_num(&b, t->has_level, t->level);
-		bids_cell_text(&b, t->source);
-		for (size_t k = 0; k < nl; k++) {
-			bids_cell_text(&b, t->label_values[k]);
-			seen_add(&seen[k], t->label_values[k]);
-		}
-		bids_cell_text(&b, t->response_key);
-		bids_cell_text(&b, t->response_category);
-		bids_cell_int(&b, t->correct >= 0, t->correct);
-		bids_cell_seconds(&b, t->has_rt, t->rt_ms / 1000.0);
-		bids_cell_int(&b, true, t->timed_out);
-		bids_cell_int(&b, true, t->frames_planned);
-		bids_cell_int(&b, true, t->frames_actual);
-		bids_cell_int(&b, true, t->dropped_frames);
-		bids_cell_int(&b, true, t->timing_ok);
-		bids_cell_int(&b, t->staircase >= 0, t->staircase);
-		buf_str(&b, bids_eol);
+		bids_row(&b, &L, t, cs, t0, seen);
 		(*rows)++;
 		if (b.n >= 65536 && write_buf(&b, f, err))
 			goto done;
@@ -781,16 +787,16 @@ static int bids_session(struct store *s, const struct store_session *ss, const c
 	}
 	size_t nch;
 	const char *const *choices = store_iter_choices(it, 0, &nch);
-	cJSON *doc = bids_sidecar(ss, task, labels, nl, seen, choices, nch);
+	cJSON *doc = bids_sidecar(ss, task, &L, seen, choices, nch);
 	ret = write_json_file(json, doc, err);
 	cJSON_Delete(doc);
 done:
 	if (f)
 		fclose(f);
-	for (size_t i = 0; seen && i < nl; i++)
+	for (size_t i = 0; seen && i < L.nl; i++)
 		free_vec(seen[i].v, seen[i].n);
 	free(seen);
-	free_vec(labels, nl);
+	layout_free(&L);
 	store_iter_close(it);
 	free(b.p);
 	free(folder);
@@ -821,37 +827,9 @@ static void fill_from_rig(struct store_session *ss)
 	diag_clear(&d);
 }
 
-int export_bids(struct store *s, const char *session, const char *subject, const char *dir,
-		struct export_stats *st, char **err)
+static int write_description(const char *dir, const struct store_session *v, size_t n,
+			     char **err)
 {
-	struct export_stats stats = {0};
-	struct store_session *v = NULL;
-	size_t n = 0;
-	if (session) {
-		v = xcalloc(1, sizeof *v);
-		if (store_session_get(s, session, v, err)) {
-			free(v);
-			return -1;
-		}
-		n = 1;
-	} else if (store_sessions_list(s, subject, &v, &n, err)) {
-		return -1;
-	}
-	int ret = -1;
-	char **ses = xcalloc(n ? n : 1, sizeof *ses);
-	if (mkdirs(dir, err))
-		goto done;
-	/* Session labels: 8 hex digits of the UUID, all 32 when a subject has two alike. */
-	for (size_t i = 0; i < n; i++) {
-		ses[i] = uuid_hex(v[i].id, 8);
-		for (size_t j = 0; j < n; j++)
-			if (j != i && !strcmp(v[i].subject, v[j].subject) &&
-			    !strncmp(v[i].id, v[j].id, 8)) {
-				free(ses[i]);
-				ses[i] = uuid_hex(v[i].id, 32);
-				break;
-			}
-	}
 	/* dataset_description.json (BIDS "Modality agnostic files": Name and BIDSVersion are
 	 * required). */
 	cJSON *dd = cJSON_CreateObject();
@@ -872,50 +850,161 @@ int export_bids(struct store *s, const char *session, const char *subject, const
 	int rc = write_json_file(path, dd, err);
 	free(path);
 	cJSON_Delete(dd);
-	if (rc)
-		goto done;
-	stats.files++;
-	/* participants.tsv: participant_id first (BIDS "Participants file"), one row per subject. */
+	return rc;
+}
+
+/* Reads a whole small text file; NULL when it does not exist. *ERR on other failures. */
+static char *slurp(const char *path, bool *failed, char **err)
+{
+	*failed = false;
+	FILE *f = fopen(path, "r");
+	if (!f) {
+		if (errno == ENOENT)
+			return NULL;
+		*failed = true;
+		if (err)
+			*err = xasprintf("%s: %s", path, strerror(errno));
+		return NULL;
+	}
 	struct buf b = {0};
-	buf_str(&b, "participant_id\n");
+	char tmp[4096];
+	size_t k;
+	while ((k = fread(tmp, 1, sizeof tmp, f)) > 0)
+		buf_put(&b, tmp, k);
+	fclose(f);
+	buf_chr(&b, '\0');
+	return b.p;
+}
+
+/* True when TEXT (a participants.tsv) has a row whose first cell is ID. */
+static bool has_participant(const char *text, const char *id)
+{
+	size_t n = strlen(id);
+	for (const char *line = text; line && *line; line = strchr(line, '\n'), line = line ? line + 1 : NULL)
+		if (!strncmp(line, id, n) && (line[n] == '\t' || line[n] == '\n' || line[n] == '\r' ||
+					      !line[n]))
+			return true;
+	return false;
+}
+
+/* participants.tsv (BIDS "Participants file": participant_id first, one row per subject):
+ * the rows already in the folder are kept, with their columns, and subjects not yet listed are
+ * added (n/a in the other columns). */
+static int write_participants(const char *dir, const struct store_session *v, size_t n,
+			      char **err)
+{
+	char *path = xasprintf("%s/participants.tsv", dir);
+	bool failed;
+	char *old = slurp(path, &failed, err);
+	int rc = -1;
+	if (failed)
+		goto done;
+	if (old && strncmp(old, "participant_id", 14)) {
+		if (err)
+			*err = xasprintf("%s: does not start with participant_id; not merged", path);
+		goto done;
+	}
+	struct buf b = {0};
+	size_t ncols = 1;
+	if (old) {
+		buf_str(&b, old);
+		if (b.n && b.p[b.n - 1] != '\n')
+			buf_chr(&b, '\n');
+		for (const char *c = old; *c && *c != '\n'; c++)
+			ncols += *c == '\t';
+	} else {
+		buf_str(&b, "participant_id\n");
+	}
 	for (size_t i = 0; i < n; i++) {
-		bool dup = false;
-		for (size_t j = 0; j < i && !dup; j++)
-			dup = !strcmp(v[i].subject, v[j].subject);
-		if (dup)
-			continue;
-		buf_str(&b, "sub-");
-		buf_str(&b, v[i].subject);
-		buf_chr(&b, '\n');
+		char *id = xasprintf("sub-%s", v[i].subject);
+		buf_chr(&b, '\0');
+		b.n--;
+		if (!has_participant(b.p, id)) {
+			buf_str(&b, id);
+			for (size_t k = 1; k < ncols; k++)
+				buf_str(&b, "\tn/a");
+			buf_chr(&b, '\n');
+		}
+		free(id);
 	}
 	buf_chr(&b, '\0');
-	path = xasprintf("%s/participants.tsv", dir);
 	rc = write_text_file(path, b.p, err);
-	free(path);
 	free(b.p);
 	if (rc)
 		goto done;
-	stats.files++;
-	cJSON *pj = cJSON_CreateObject();
-	column(pj, "participant_id", "Pseudonymous subject ID as stored by tachist (letters and "
-	       "digits)", NULL);
-	path = xasprintf("%s/participants.json", dir);
-	rc = write_json_file(path, pj, err);
-	free(path);
+	/* participants.json: kept when present (it may describe more columns). */
+	char *jpath = xasprintf("%s/participants.json", dir);
+	char *jold = slurp(jpath, &failed, NULL);
+	cJSON *pj = jold ? cJSON_Parse(jold) : NULL;
+	if (!cJSON_IsObject(pj)) {
+		cJSON_Delete(pj);
+		pj = cJSON_CreateObject();
+	}
+	if (!cJSON_GetObjectItemCaseSensitive(pj, "participant_id"))
+		column(pj, "participant_id", "Pseudonymous subject ID as stored by tachist (letters "
+		       "and digits)", NULL);
+	rc = write_json_file(jpath, pj, err);
 	cJSON_Delete(pj);
-	if (rc)
-		goto done;
-	stats.files++;
+	free(jold);
+	free(jpath);
+done:
+	free(old);
+	free(path);
+	return rc;
+}
+
+/* Session labels: 8 hex digits of the UUID, all 32 when a subject has two alike. */
+static char **session_labels(const struct store_session *v, size_t n)
+{
+	char **ses = xcalloc(n ? n : 1, sizeof *ses);
 	for (size_t i = 0; i < n; i++) {
+		ses[i] = uuid_hex(v[i].id, 8);
+		for (size_t j = 0; j < n; j++)
+			if (j != i && !strcmp(v[i].subject, v[j].subject) &&
+			    !strncmp(v[i].id, v[j].id, 8)) {
+				free(ses[i]);
+				ses[i] = uuid_hex(v[i].id, 32);
+				break;
+			}
+	}
+	return ses;
+}
+
+int export_bids(struct store *s, const char *session, const char *subject, const char *dir,
+		struct export_stats *st, char **err)
+{
+	struct export_stats stats = {0};
+	struct store_session *v = NULL;
+	size_t n = 0;
+	if (session) {
+		v = xcalloc(1, sizeof *v);
+		if (store_session_get(s, session, v, err)) {
+			free(v);
+			return -1;
+		}
+		n = 1;
+	} else if (store_sessions_list(s, subject, &v, &n, err)) {
+		return -1;
+	}
+	int ret = -1;
+	char **ses = session_labels(v, n);
+	for (size_t i = 0; i < n; i++)
 		if (!store_subject_valid(v[i].subject)) {
 			if (err)
 				*err = xasprintf("session %s: subject '%s' is not a valid BIDS label",
 						 v[i].id, v[i].subject);
 			goto done;
 		}
+	if (mkdirs(dir, err) || write_description(dir, v, n, err))
+		goto done;
+	stats.files++;
+	if (write_participants(dir, v, n, err))
+		goto done;
+	stats.files += 2;
+	for (size_t i = 0; i < n; i++) {
 		fill_from_rig(&v[i]);
 		char *task = bids_label(v[i].protocol_name, "task");
-		rc = bids_session(s, &v[i], dir, v[i].subject, ses[i], task, &stats.rows, err);
+		int rc = bids_session(s, &v[i], dir, ses[i], task, &stats.rows, err);
 		free(task);
 		if (rc)
 			goto done;

@@ -434,6 +434,7 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 		s->ss.timing_mode = xstrdup(mode);
 		free(s->ss.observer);
 		s->ss.observer = xstrdup(s->observer_text);
+		s->ss.planned_trials = (int)s->plan.ntrials;
 		if (store_session_begin(s->store, &s->ss, err))
 			goto fail;
 	}
@@ -602,10 +603,16 @@ int run_close(struct run_session *s, char **err)
 		size_t done = 0;
 		for (size_t k = 0; k < s->plan.ntrials; k++)
 			done += s->stored[k] || s->skipped[s->plan.trials[k].block];
-		if (s->interrupted || run_stop_requested())
+		/* Every planned trial stored: complete, however the run ended. Otherwise a signal
+		 * interrupted it, a storage failure aborted it, or the experimenter ended it early. */
+		if (done >= s->plan.ntrials)
+			st = STORE_COMPLETE;
+		else if (s->interrupted || run_stop_requested())
 			st = STORE_INTERRUPTED;
-		else if (s->failed || s->ended || done < s->plan.ntrials)
+		else if (s->failed)
 			st = STORE_ABORTED;
+		else
+			st = STORE_ENDED_EARLY;
 		rc = store_session_end(s->store, s->ss.id, st, err);
 	}
 	if (s->handlers) {

@@ -31,11 +31,11 @@ grow() {  # DB TARGET_ROWS
     INSERT INTO trials (session_id, trial, block, block_name, block_trial, practice, stim, image,
       category, choice, level, source, labels, response_key, response, response_category, correct,
       rt_ms, timed_out, frames_planned, frames_actual, dropped_frames, timing_ok, onset_ns, offset_ns,
-      start_ns, staircase, anticipation, key_sdl_ms, level_requested, repeat_of)
+      start_ns, staircase, anticipation, key_sdl_ms, level_requested, repeat_of, rt_clock)
     SELECT session_id, trial + 1000 * i, block, block_name, block_trial + 1000 * i, practice, stim, image,
       category, choice, level, source, labels, response_key, response, response_category, correct,
       rt_ms, timed_out, frames_planned, frames_actual, dropped_frames, timing_ok, onset_ns + i * 2000000000000,
-      offset_ns, start_ns, staircase, anticipation, key_sdl_ms, level_requested, repeat_of
+      offset_ns, start_ns, staircase, anticipation, key_sdl_ms, level_requested, repeat_of, rt_clock
     FROM trials, k WHERE trial < 1000;" || exit 1
 }
 cp "$W/big.db" "$W/mid.db"
@@ -47,9 +47,11 @@ secs() { sed -n 's/.*Elapsed (wall clock) time (h:mm:ss or m:ss): //p' "$1" | aw
 /usr/bin/time -v "$TACHIST" export --db "$W/big.db" --format csv --out "$W/big.csv" 2>"$W/t_ours" || exit 1
 /usr/bin/time -v sqlite3 -csv -header "$W/big.db" "SELECT * FROM trials" >"$W/cli.csv" 2>"$W/t_cli" || exit 1
 # The same columns and order as the export (labels as their stored JSON text).
-/usr/bin/time -v sqlite3 -csv -header "$W/big.db" "SELECT t.session_id, s.subject, block, block_trial,
-  trial, image, category, level, source, labels, response_key, response_category AS response, correct,
-  rt_ms, timed_out, frames_planned, frames_actual, dropped_frames, timing_ok, onset_ns, staircase
+/usr/bin/time -v sqlite3 -csv -header "$W/big.db" "SELECT t.session_id, s.subject, s.protocol_name AS protocol,
+  s.started_utc, block + 1 AS block, block_name, practice, block_trial + 1 AS block_trial, trial + 1 AS trial,
+  image, category, level, source, labels, response_key, response_category AS response, correct, rt_ms,
+  rt_clock, timed_out, anticipation, frames_planned, frames_actual, dropped_frames, timing_ok, onset_ns,
+  staircase, repeat_of + 1 AS repeat_of
   FROM trials t JOIN sessions s ON s.id = t.session_id ORDER BY s.started_utc, t.session_id, t.trial" >"$W/cli2.csv" 2>"$W/t_cli2" || exit 1
 rows=$(($(sqlite3 "$W/big.db" 'SELECT count(*) FROM trials')))
 echo "   export of $rows trials to CSV:"

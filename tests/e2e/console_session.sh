@@ -121,7 +121,7 @@ tm_keys n
 expect_screen "export: no means nothing written" "nothing written"
 lines=$(wc -l < "$WORK/out.csv" | tr -d ' ')
 expect_eq "the CSV has a header and 36 rows" 37 "$lines"
-check "the CSV header is the export's" grep -q '^session_id,subject,block,block_trial,trial,image' "$WORK/out.csv"
+check "the CSV header is the export's" grep -q '^session_id,subject,protocol,started_utc,block,block_name,practice,block_trial,trial,image' "$WORK/out.csv"
 
 tm_keys q q
 expect_screen "back on the blocks screen" 'Block "warmup" done'

@@ -22,7 +22,7 @@ check "json equals the database (Python json module)" $PY tests/tools/check_expo
 expect_exit "export --subject" 0 "$TACHIST" export --db "$DB" --format csv --subject S02 --out "$WORK/s2.csv"
 check "subject selection equals the database" $PY tests/tools/check_export.py "$DB" csv "$WORK/s2.csv" S02
 expect_exit "export --session prefix to stdout" 0 "$TACHIST" export --db "$DB" --format json --session "$(echo "$S2" | cut -c1-8)" --out -
-expect_eq "session selection has that session's rows" 25 "$($PY -c 'import json,sys; print(len(json.load(open(sys.argv[1]))))' "$WORK/last.out")"
+expect_eq "session selection has that session's rows" 25 "$($PY -c 'import json,sys; print(len(json.load(open(sys.argv[1]))["trials"]))' "$WORK/last.out")"
 
 expect_exit "unknown format is a usage error" 2 "$TACHIST" export --db "$DB" --format xls --out "$WORK/x"
 expect_exit "both selections is a usage error" 2 "$TACHIST" export --db "$DB" --format csv --session "$S2" --subject S02 --out "$WORK/x"
@@ -63,7 +63,8 @@ for sid, subj, n in sessions:
     f = hits[0]
     need(pat.search(f) is not None, f"bad file name {f}")
     # "Common principles: Tabular files": tab separated, header row, n/a for missing, no empty cells.
-    t = list(csv.reader(open(f, newline="", encoding="utf-8"), delimiter="\t"))
+    # One physical line per row: text cells escape tab, newline, CR and backslash, never quote.
+    t = [line.split("\t") for line in open(f, newline="", encoding="utf-8").read().split("\n")[:-1]]
     need(t[0][:2] == ["onset", "duration"], f"{f}: onset, duration must come first")
     need(len(t) == n + 1, f"{f}: {len(t) - 1} rows, want {n}")
     need(all(len(r) == len(t[0]) for r in t), f"{f}: ragged rows")
@@ -83,7 +84,7 @@ for sid, subj, n in sessions:
     for col in t[0]:
         need(col in side and "Description" in side[col], f"{f}: sidecar lacks {col}")
     need(side["onset"].get("Units") == "s" and side["response_time"].get("Units") == "s", "times in s")
-    need("Levels" in side["trial_type"] and "Levels" in side["correct"], "categorical Levels")
+    need("Levels" in side["category"] and "Levels" in side["correct"], "categorical Levels")
     sp = side.get("StimulusPresentation", {})
     for k in ("ScreenDistance", "ScreenRefreshRate", "ScreenResolution", "ScreenSize"):
         need(k in sp, f"StimulusPresentation lacks {k}")
@@ -93,4 +94,8 @@ for b in bad[:20]:
 sys.exit(1 if bad else 0)
 PYEOF
 check "bids dataset follows the specification's layout and tabular rules" $PY "$WORK/bids.py" "$WORK/bids" "$DB"
+# Two exports into one folder: participants.tsv lists both subjects (merged, not overwritten).
+expect_exit "bids export of one subject" 0 "$TACHIST" export --db "$DB" --format bids --subject S01 --out "$WORK/bids2"
+expect_exit "bids export of the other into the same folder" 0 "$TACHIST" export --db "$DB" --format bids --subject S02 --out "$WORK/bids2"
+expect_eq "participants.tsv keeps both" "participant_id sub-S01 sub-S02" "$(tr '\n' ' ' <"$WORK/bids2/participants.tsv" | sed 's/ $//')"
 expect_exit "bids to stdout is a usage error" 2 "$TACHIST" export --db "$DB" --format bids --out -

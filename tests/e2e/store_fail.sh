@@ -47,11 +47,42 @@ else
   check "trials were stored before the disk filled ($n)" test "${n:-0}" -gt 0
   expect_eq "every stored trial is contiguous and the session is aborted" "$n|$n|aborted" "$res"
 fi
+# -- full disk at the end of a session, then readers on the full disk ---------------------------
+# The disk fills just before the session ends: the end must still be stored (the reserve file
+# beside the database makes room), and while the disk stays full, sessions, export (to another
+# disk) and report work: readers never write.
+mkdir "$WORK/tiny3"
+cat >"$WORK/endfull.sh" <<SHEOF
+mount -t tmpfs -o size=1m tmpfs "$WORK/tiny3" || exit 77
+"$FILL" "$WORK/tiny3/e.db" 1 20 --flips 10 --subject END --plain --fill-disk "$WORK/tiny3/filler" >"$WORK/end.out" 2>"$WORK/end.err"
+echo "rc \$?" >"$WORK/endfull.res"
+dd if=/dev/zero of="$WORK/tiny3/filler2" bs=4k 2>/dev/null; dd if=/dev/zero of="$WORK/tiny3/filler3" bs=1 2>/dev/null
+df -k "$WORK/tiny3" | awk 'NR == 2 { print (\$4 == 0 ? "full" : "room " \$4) }' >>"$WORK/endfull.res"
+"$TACHIST" sessions --db "$WORK/tiny3/e.db" >"$WORK/end.sessions" 2>"$WORK/end.sessions.err"
+echo "sessions \$?" >>"$WORK/endfull.res"
+"$TACHIST" export --db "$WORK/tiny3/e.db" --format csv --out "$WORK/end.csv" 2>"$WORK/end.export.err"
+echo "export \$?" >>"$WORK/endfull.res"
+"$TACHIST" report --db "$WORK/tiny3/e.db" --all >"$WORK/end.report" 2>"$WORK/end.report.err"
+echo "report \$?" >>"$WORK/endfull.res"
+SHEOF
+unshare -rm sh "$WORK/endfull.sh"; rc=$?
+if [ "$rc" = 77 ] || [ ! -s "$WORK/endfull.res" ]; then
+  skip "full disk at the end" "cannot mount a tmpfs in a private namespace here"
+else
+  expect_eq "the session ends although the disk filled first" "rc 0" "$(sed -n 1p "$WORK/endfull.res")"
+  expect_eq "the disk is full for the readers" full "$(sed -n 2p "$WORK/endfull.res")"
+  expect_eq "sessions lists it on the full disk" "sessions 0" "$(sed -n 3p "$WORK/endfull.res")"
+  expect_eq "export writes it to another disk" "export 0" "$(sed -n 4p "$WORK/endfull.res")"
+  expect_eq "report reads it" "report 0" "$(sed -n 5p "$WORK/endfull.res")"
+  check "and its status is complete" grep -q " END .* complete " "$WORK/end.sessions"
+  expect_eq "the export has every trial" 21 "$(grep -c . "$WORK/end.csv")"
+  sed 's/^/#   /' "$WORK/end.err" "$WORK/end.sessions.err" "$WORK/end.export.err" "$WORK/end.report.err" | head -n 10
+fi
 # -- read-only file ----------------------------------------------------------------------------
 # Run as another user (nobody, when we are root) from a scratch folder that user can read, holding
 # copies of everything it must read: the binary, the demo rig, list and images, the protocol.
 if ! user_scratch; then
-  for what in "merging into a read-only database" "listing, exporting and merging from it" \
+  for what in "pooling into a read-only database" "listing, exporting and pooling from it" \
               "run on a read-only database"; do
     skip "$what" "no folder that the unprivileged user can enter (\$TMPDIR, /tmp, /var/tmp, /dev/shm)"
   done
@@ -74,16 +105,16 @@ for where in rw ro; do
   chmod 444 "$db"
   [ "$where" = ro ] && chmod 555 "$U/ro"
   before=$(sqlite3 "$db" 'SELECT count(*) FROM trials')
-  as_user "$UT" merge --into "$db" "$U/other.db" >"$WORK/ro.out" 2>"$WORK/ro.err"
-  expect_eq "$where: merging into a read-only database fails" 1 $?
+  as_user "$UT" pool --into "$db" "$U/other.db" >"$WORK/ro.out" 2>"$WORK/ro.err"
+  expect_eq "$where: pooling into a read-only database fails" 1 $?
   check "$where: with a message saying the database is read-only" grep -q "read-only" "$WORK/ro.err"
   expect_eq "$where: its trials are intact" "$before" "$(sqlite3 "$db" 'SELECT count(*) FROM trials')"
   as_user "$UT" sessions --db "$db" >"$WORK/ro.out" 2>"$WORK/ro.err"
   expect_eq "$where: a read-only database can still be listed" 0 $?
   as_user "$UT" export --db "$db" --format csv --out - >"$WORK/ro.csv" 2>"$WORK/ro.err"
   expect_eq "$where: and exported" 5 "$(grep -c '^[0-9a-f]\{8\}-' "$WORK/ro.csv")"
-  as_user "$UT" merge --into "$U/rw/pool.db" "$db" >"$WORK/ro.out" 2>"$WORK/ro.err"
-  expect_eq "$where: and merged from" 0 $?
+  as_user "$UT" pool --into "$U/rw/pool.db" "$db" >"$WORK/ro.out" 2>"$WORK/ro.err"
+  expect_eq "$where: and pooled from" 0 $?
 done
 chmod 755 "$U/ro"
 expect_eq "the pool got both read-only sessions" 2 "$(sqlite3 "$U/rw/pool.db" 'SELECT count(*) FROM sessions')"

@@ -14,38 +14,39 @@ import json
 import sqlite3
 import sys
 
-STD_HEAD = ["session_id", "subject", "block", "block_trial", "trial", "image", "category",
-            "level", "source"]
-STD_TAIL = ["response_key", "response", "correct", "rt_ms", "timed_out", "frames_planned",
-            "frames_actual", "dropped_frames", "timing_ok", "onset_ns", "staircase"]
-TEXT = {"session_id", "subject", "image", "category", "source", "response_key", "response"}
+STD_HEAD = ["session_id", "subject", "protocol", "started_utc", "block", "block_name",
+            "practice", "block_trial", "trial", "image", "category", "level", "source"]
+STD_TAIL = ["response_key", "response", "correct", "rt_ms", "rt_clock", "timed_out",
+            "anticipation", "frames_planned", "frames_actual", "dropped_frames", "timing_ok",
+            "onset_ns", "staircase", "repeat_of"]
+TEXT = {"session_id", "subject", "protocol", "started_utc", "block_name", "image", "category",
+        "source", "response_key", "response", "rt_clock"}
+# Indices kept from 0 in the database and exported from 1 (DESIGN.md).
+ONE_BASED = {"block", "block_trial", "trial", "repeat_of"}
 
 
 def db_rows(path, subject):
     con = sqlite3.connect(path)
     sessions = con.execute(
-        "SELECT id, subject, label_names FROM sessions WHERE ?1 IS NULL OR subject = ?1"
-        " ORDER BY started_utc, id", (subject,)).fetchall()
+        "SELECT id, subject, label_names, protocol_name, started_utc FROM sessions"
+        " WHERE ?1 IS NULL OR subject = ?1 ORDER BY started_utc, id", (subject,)).fetchall()
     names = []
-    for _, _, ln in sessions:
-        for n in json.loads(ln or "[]"):
+    for s in sessions:
+        for n in json.loads(s[2] or "[]"):
             if n not in names:
                 names.append(n)
     rows = []
-    for sid, subj, ln in sessions:
+    cols = [c for c in STD_HEAD + STD_TAIL if c not in ("session_id", "subject", "protocol",
+                                                         "started_utc")]
+    db_cols = ["response_category" if c == "response" else c for c in cols]
+    for sid, subj, ln, proto, started in sessions:
         own = json.loads(ln or "[]")
-        for r in con.execute(
-                "SELECT block, block_trial, trial, image, category, level, source, labels,"
-                " response_key, response_category, correct, rt_ms, timed_out, frames_planned,"
-                " frames_actual, dropped_frames, timing_ok, onset_ns, staircase"
-                " FROM trials WHERE session_id = ? ORDER BY trial", (sid,)):
-            vals = dict(zip(own, json.loads(r[7] or "[]")))
-            row = {"session_id": sid, "subject": subj, "block": r[0], "block_trial": r[1],
-                   "trial": r[2], "image": r[3], "category": r[4], "level": r[5],
-                   "source": r[6], "response_key": r[8], "response": r[9], "correct": r[10],
-                   "rt_ms": r[11], "timed_out": r[12], "frames_planned": r[13],
-                   "frames_actual": r[14], "dropped_frames": r[15], "timing_ok": r[16],
-                   "onset_ns": r[17], "staircase": r[18]}
+        for r in con.execute("SELECT labels, " + ", ".join(db_cols) +
+                             " FROM trials WHERE session_id = ? ORDER BY trial", (sid,)):
+            vals = dict(zip(own, json.loads(r[0] or "[]")))
+            row = {"session_id": sid, "subject": subj, "protocol": proto, "started_utc": started}
+            for c, v in zip(cols, r[1:]):
+                row[c] = v + 1 if c in ONE_BASED and v is not None else v
             for n in names:
                 row["label:" + n] = vals.get(n)
             rows.append(row)
@@ -98,7 +99,11 @@ def main():
                 same(col, cell, want[col], problems, f"row {i + 1}")
     else:
         with open(path, encoding="utf-8") as f:
-            doc = json.load(f)
+            top = json.load(f)
+        doc = top["trials"]
+        sessions = {s["session_id"]: s for s in top["sessions"]}
+        if any(r["session_id"] not in sessions for r in rows):
+            problems.append("a trial's session is missing from \"sessions\"")
         if len(doc) != len(rows):
             problems.append(f"{len(doc)} rows, database has {len(rows)}")
         for i, (obj, want) in enumerate(zip(doc, rows)):

@@ -1,16 +1,22 @@
 /* store_fill — writes a database of invented sessions through the store's write API, for the
- * export and merge end-to-end tests and the benchmarks.
+ * export and pool end-to-end tests and the benchmarks.
  *
  *   store_fill DB SESSIONS TRIALS [--flips K] [--subject ID] [--plain] [--running]
+ *              [--fill-disk FILE]
  *
+ * --fill-disk writes FILE until the disk is full just before each session is ended, so the end
+ * itself meets a full disk (the store's reserve file must make room for it).
  * Each session gets TRIALS trials (one transaction each, as in a real run) with K flip times.
  * Unless --plain, the list and protocol hold the awkward text an export must survive: commas,
  * quotes, newlines, tabs, CR, cells starting with = + - @, non-ASCII letters, a negative level.
  * Prints the session IDs, one a line; when a trial cannot be stored, the session ID and
  * "committed N" (trials stored in that session), and exits 1. */
+#include <errno.h>
+#include <fcntl.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "protocol.h"
 #include "rig.h"
@@ -23,16 +29,32 @@ static char *notes[9] = {"plain", "has, comma", "quote \"q\" here", "line\nbreak
 			 "@at", "\ttab", "\rcr", "\xc3\xbc" "n\xc3\xaf" "code"};
 static char *sets[3] = {"A", "B", "C"};
 
+/* Appends zeros to PATH until the file system says it is full. */
+static void fill_disk(const char *path)
+{
+	int fd = open(path, O_WRONLY | O_CREAT | O_APPEND, 0644);
+	if (fd < 0)
+		return;
+	static const char zero[4096];
+	while (write(fd, zero, sizeof zero) > 0)
+		;
+	/* Smaller writes take the last partial block. */
+	while (write(fd, zero, 1) > 0)
+		;
+	close(fd);
+}
+
 int main(int argc, char **argv)
 {
 	if (argc < 4) {
 		fprintf(stderr, "usage: store_fill DB SESSIONS TRIALS [--flips K] [--subject ID] "
-			"[--plain] [--running]\n");
+			"[--plain] [--running] [--fill-disk FILE]\n");
 		return 2;
 	}
 	int nsess = atoi(argv[2]), ntrials = atoi(argv[3]), nflips = 60;
 	const char *subject = "S01";
 	int plain = 0, running = 0;
+	const char *filler = NULL;
 	for (int i = 4; i < argc; i++) {
 		if (!strcmp(argv[i], "--flips") && i + 1 < argc)
 			nflips = atoi(argv[++i]);
@@ -40,6 +62,8 @@ int main(int argc, char **argv)
 			subject = argv[++i];
 		else if (!strcmp(argv[i], "--plain"))
 			plain = 1;
+		else if (!strcmp(argv[i], "--fill-disk") && i + 1 < argc)
+			filler = argv[++i];
 		else if (!strcmp(argv[i], "--running"))
 			running = 1;
 	}
@@ -172,6 +196,8 @@ int main(int argc, char **argv)
 				return 1;
 			}
 		}
+		if (filler)
+			fill_disk(filler);
 		if (!running && store_session_end(s, ss.id, STORE_COMPLETE, &err)) {
 			fprintf(stderr, "store_fill: %s\n", err);
 			return 1;

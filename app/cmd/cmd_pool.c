@@ -1,14 +1,14 @@
-/* cmd_merge — `tachist merge --into FILE DB...`: pools databases from several rigs into one.
- * Sessions are keyed by UUID and trials by (session, index), so merging a file twice adds
+/* cmd_pool — `tachist pool --into FILE DB...`: pools databases from several rigs into one.
+ * Sessions are keyed by UUID and trials by (session, index), so pooling a file twice adds
  * nothing; each source goes in its own transaction, older schemas are migrated in a temporary
- * copy, newer ones refused. */
+ * copy, newer, foreign and damaged ones refused by name. The work is store_pool_from. */
 #include <stdlib.h>
 #include <string.h>
 
 #include "cmd.h"
 #include "store.h"
 
-int cmd_merge(int argc, char **argv)
+int cmd_pool(int argc, char **argv)
 {
 	const char *into = NULL;
 	const char **srcs = xcalloc((size_t)argc, sizeof *srcs);
@@ -17,32 +17,32 @@ int cmd_merge(int argc, char **argv)
 		if (!strcmp(argv[i], "--into") && i + 1 < argc)
 			into = argv[++i];
 		else if (argv[i][0] == '-' && argv[i][1]) {
-			fprintf(stderr, "tachist merge: unexpected option '%s'\n", argv[i]);
-			cmd_print_usage("merge", stderr);
+			fprintf(stderr, "tachist pool: unexpected option '%s'\n", argv[i]);
+			cmd_print_usage("pool", stderr);
 			free(srcs);
 			return EXIT_USAGE;
 		} else
 			srcs[nsrc++] = argv[i];
 	}
 	if (!into || nsrc == 0) {
-		fprintf(stderr, "tachist merge: give --into FILE and at least one database\n");
-		cmd_print_usage("merge", stderr);
+		fprintf(stderr, "tachist pool: give --into FILE and at least one database\n");
+		cmd_print_usage("pool", stderr);
 		free(srcs);
 		return EXIT_USAGE;
 	}
 	struct store *s;
 	char *err = NULL;
 	if (store_open(into, &s, &err)) {
-		fprintf(stderr, "tachist merge: %s\n", err);
+		fprintf(stderr, "tachist pool: %s\n", err);
 		free(err);
 		free(srcs);
 		return EXIT_PROBLEMS;
 	}
 	int failed = 0;
 	for (int i = 0; i < nsrc; i++) {
-		struct store_merge_stats st;
-		if (store_merge_from(s, srcs[i], &st, &err)) {
-			fprintf(stderr, "tachist merge: %s (nothing from it was added)\n", err);
+		struct store_pool_stats st;
+		if (store_pool_from(s, srcs[i], &st, &err)) {
+			fprintf(stderr, "tachist pool: %s (nothing from it was added)\n", err);
 			free(err);
 			err = NULL;
 			failed++;
@@ -55,7 +55,7 @@ int cmd_merge(int argc, char **argv)
 			printf(" (schema version %d read through a migrated copy)", st.source_version);
 		printf("\n");
 		if (st.trials_conflicting)
-			fprintf(stderr, "tachist merge: warning: %s: %zu trials differ from the ones "
+			fprintf(stderr, "tachist pool: warning: %s: %zu trials differ from the ones "
 				"already in %s; kept those in %s\n", srcs[i], st.trials_conflicting,
 				into, into);
 	}
