@@ -21,7 +21,7 @@ STD_TAIL = ["response_key", "response", "correct", "rt_ms", "rt_clock", "timed_o
             "onset_ns", "staircase", "repeat_of"]
 TEXT = {"session_id", "subject", "protocol", "started_utc", "block_name", "image", "category",
         "source", "response_key", "response", "rt_clock"}
-# Indices kept from 0 in the database and exported from 1 (DESIGN.md).
+# Indices kept from 0 in the database and exported from 1 (docs/storage.md).
 ONE_BASED = {"block", "block_trial", "trial", "repeat_of"}
 
 
