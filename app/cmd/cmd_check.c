@@ -19,9 +19,9 @@
 #include "geom.h"
 #include "image.h"
 #include "plan.h"
-#include "protocol.h"
-#include "rig.h"
-#include "stimlist.h"
+#include "protocol_file.h"
+#include "rig_file.h"
+#include "stimlist_file.h"
 
 /* The seed the printed plan is built with; `run` draws its own. */
 #define CHECK_SEED 1

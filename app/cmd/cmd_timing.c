@@ -13,7 +13,7 @@
 #include "dclock.h"
 #include "display.h"
 #include "frames.h"
-#include "rig.h"
+#include "rig_file.h"
 
 /* A bar of '#' for COUNT out of TOP, at most 50 wide, in BAR (64 bytes). */
 static const char *hist_bar(char *bar, size_t count, size_t top)

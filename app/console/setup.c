@@ -19,10 +19,10 @@
 #include "geom.h"
 #include "observer.h"
 #include "plan.h"
-#include "protocol.h"
-#include "rig.h"
+#include "protocol_file.h"
+#include "rig_file.h"
 #include "run.h"
-#include "stimlist.h"
+#include "stimlist_file.h"
 #include "store.h"
 
 enum row { ROW_PROTOCOL, ROW_SUBJECT, ROW_RIG, ROW_SEED, ROW_DISPLAY, ROW_OBSERVER, ROW_MODEL,
