@@ -30,7 +30,7 @@ DEB_PKGS := gcc make pkg-config libncurses-dev libsdl2-dev libsdl2-image-dev lib
             libsdl2-ttf-dev libfontconfig-dev fonts-dejavu-core libevdev-dev libpq-dev \
             postgresql mandoc
 
-.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets
+.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets layers
 all: $(BUILD)/tachist
 
 $(BUILD)/tachist: $(OBJ)
@@ -73,7 +73,12 @@ SAN := -O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize
 test: deps
 	$(MAKE) --no-print-directory BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
 	$(MAKE) --no-print-directory demo-assets
+	$(MAKE) --no-print-directory layers
 	@BUILD=build/san sh tests/run.sh
+
+# Every #include against the layer rules in docs/design.md.
+layers:
+	@sh tests/tools/layers.sh
 
 bench: deps
 	$(MAKE) --no-print-directory BUILD=build/rel CFLAGS="-O2 -g -DNDEBUG" check-build
