@@ -7,7 +7,6 @@
  * whose plan_trial.staircase >= 0) and run_adaptive_update (after it is stored). */
 #include "run_private.h"
 
-#include <errno.h>
 #include <fcntl.h>
 #include <math.h>
 #include <signal.h>
@@ -23,6 +22,7 @@
 #include "frames.h"
 #include "geom.h"
 #include "image.h"
+#include "inputs.h"
 #include "observer.h"
 #include "plan.h"
 #include "preload.h"
@@ -105,48 +105,26 @@ static void shot_hook(void *ctx, enum epoch e, int frame, bool stim)
 
 /* ---- open ---- */
 
+/* Loads protocol, rig, list and images and builds the plan through the one loader `check` uses,
+ * so a session refuses to begin on anything check would refuse, with its messages in D. */
 static int load_inputs(struct run_session *s, const struct run_options *o, const char *rig_text,
 		       uint64_t seed, struct diag_list *d, char **err)
 {
-	if (protocol_load(o->protocol_path, &s->proto, d)) {
-		*err = xasprintf("%s has problems; run `tachist check %s` for the list", o->protocol_path,
+	struct inputs_options io = {.protocol_path = o->protocol_path, .rig_path = o->rig_path,
+				    .rig_text = rig_text, .seed = seed};
+	struct inputs in;
+	if (inputs_load(&io, &in, d)) {
+		inputs_clear(&in);
+		*err = xasprintf("nothing was started: `tachist check %s` finds the same problems",
 				 o->protocol_path);
 		return -1;
 	}
-	s->have_proto = true;
-	int rc = rig_text ? rig_parse(o->rig_path ? o->rig_path : "(stored rig)", rig_text, &s->rig, d)
-			  : rig_load(o->rig_path, &s->rig, d);
-	if (rc) {
-		*err = xasprintf("the rig profile has problems");
-		return -1;
-	}
-	s->have_rig = true;
-	if (stimlist_load(s->proto.stimuli, &s->proto, &s->list, d)) {
-		*err = xasprintf("the stimulus list %s has problems", s->proto.stimuli);
-		return -1;
-	}
-	s->have_list = true;
-	if (plan_build(&s->proto, &s->list, &s->rig, seed, &s->plan, d)) {
-		*err = xasprintf("no trial plan can be built from %s", o->protocol_path);
-		return -1;
-	}
-	s->have_plan = true;
-	/* Every image the plan uses must be readable now; one that goes missing later stops the
-	 * block when its turn comes. */
-	size_t missing = 0;
-	for (size_t i = 0; i < s->plan.ntrials; i++) {
-		int k = s->plan.trials[i].stim;
-		if (k < 0)
-			continue;
-		const struct stim *st = &s->list.items[k];
-		if (access(st->path, R_OK) && missing++ < 20)
-			diag_add(d, DIAG_ERROR, s->list.path, st->line, "image %s cannot be read (%s)",
-				 st->image, strerror(errno));
-	}
-	if (missing) {
-		*err = xasprintf("%zu planned image%s cannot be read", missing, missing == 1 ? "" : "s");
-		return -1;
-	}
+	/* The session takes over what the loader built. */
+	s->proto = in.proto;
+	s->rig = in.rig;
+	s->list = in.list;
+	s->plan = in.plan;
+	s->have_proto = s->have_rig = s->have_list = s->have_plan = true;
 	return 0;
 }
 
