@@ -42,7 +42,7 @@ struct protocol_block {
 	size_t nfilters;
 	int repeats;                   /* each selected stimulus is shown this many times */
 	enum protocol_order order;
-	int max_run;                   /* longest run of one category allowed; 0 = no limit */
+	int longest_streak;            /* longest run of one category allowed; 0 = no limit */
 	bool practice;
 	bool feedback;                 /* feedback shown in this block (practice blocks default yes) */
 	bool repeat_faults;            /* trials with timing faults are shown again at the block end */

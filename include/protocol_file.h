@@ -45,7 +45,7 @@ struct protocol_key {
 struct protocol_section {
 	const char *kind;           /* word in the header: "timing", "block", "adaptive" */
 	int named;                  /* header is "[kind NAME]" */
-	const struct protocol_key *keys;   /* NULL: any key goes to custom() (like [choices]) */
+	const struct protocol_key *keys;   /* NULL: any key goes to custom() (like [categories]) */
 	size_t nkeys;
 	/* Starts an instance of the section (NAME is NULL unless named). Returns 0, or -1 to skip the
 	 * instance's keys (after reporting why). */

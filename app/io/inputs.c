@@ -31,9 +31,11 @@ static int cmp_path(const void *a, const void *b)
 	return c ? c : (x->i > y->i) - (x->i < y->i);
 }
 
-/* Decodes every image of L, reporting those that cannot be; W and H get each row's size (0 when
- * not decoded). */
-static void probe_images(const struct stimlist *l, int *w, int *h, struct diag_list *d)
+/* Decodes every image of L (refusing from its header one wider or taller than MAX_SIDE, 0: the
+ * default limit), reporting those that cannot be; W and H get each row's size (0 when not
+ * decoded). */
+static void probe_images(const struct stimlist *l, long max_side, int *w, int *h,
+			 struct diag_list *d)
 {
 	struct by_path *sorted = xmalloc((l->n ? l->n : 1) * sizeof *sorted);
 	for (size_t i = 0; i < l->n; i++) {
@@ -51,7 +53,7 @@ static void probe_images(const struct stimlist *l, int *w, int *h, struct diag_l
 		}
 		struct image_info info;
 		char err[512];
-		if (image_probe(s->path, &info, err, sizeof err)) {
+		if (image_probe_max(s->path, max_side, &info, err, sizeof err)) {
 			diag_add(d, DIAG_ERROR, l->path, s->line, "image '%s': %s", s->image, err);
 			continue;
 		}
@@ -101,7 +103,8 @@ static void check_fit(const struct protocol *p, const struct rig *r, const struc
 			 p->size_deg, stim_px, up, up == 1 ? "" : "s", worst_up, up_img);
 }
 
-/* The list the protocol names, and its images (and the mask image). */
+/* The list the protocol names, and its images (and the mask image), under the rig's size limit
+ * when the rig is loaded. */
 static void load_list(struct inputs *in, int **w, int **h, struct diag_list *d)
 {
 	const struct protocol *p = &in->proto;
@@ -116,11 +119,12 @@ static void load_list(struct inputs *in, int **w, int **h, struct diag_list *d)
 	size_t n = in->list.n ? in->list.n : 1;
 	*w = xcalloc(n, sizeof **w);
 	*h = xcalloc(n, sizeof **h);
-	probe_images(&in->list, *w, *h, d);
+	long max_side = in->have_rig ? in->rig.max_image_side : 0;
+	probe_images(&in->list, max_side, *w, *h, d);
 	if (p->mask == MASK_IMAGE && p->mask_image) {
 		struct image_info info;
 		char err[512];
-		if (image_probe(p->mask_image, &info, err, sizeof err))
+		if (image_probe_max(p->mask_image, max_side, &info, err, sizeof err))
 			diag_add(d, DIAG_ERROR, p->path, p->mask_image_line, "mask_image: %s", err);
 	}
 }

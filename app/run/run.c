@@ -66,10 +66,10 @@ static uint64_t fresh_seed(void)
 static int decode_image(const char *path, int *w, int *h, uint8_t **rgba, char *err, size_t errlen,
 			void *ctx)
 {
-	(void)ctx;
+	const struct rig *rig = ctx;   /* the session's: its image size limit */
 	struct image img;
 	struct image_info info;
-	if (image_load(path, &img, &info, err, errlen))
+	if (image_load_max(path, rig->max_image_side, &img, &info, err, errlen))
 		return -1;
 	*w = img.width;
 	*h = img.height;
@@ -205,7 +205,8 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 	} else if (s->proto.mask == MASK_IMAGE && s->proto.mask_image) {
 		struct image img;
 		struct image_info info;
-		if (image_load(s->proto.mask_image, &img, &info, e, sizeof e) == 0) {
+		if (image_load_max(s->proto.mask_image, s->rig.max_image_side, &img, &info, e,
+				   sizeof e) == 0) {
 			s->mask = display_texture_rgba(s->disp, img.width, img.height, img.rgba,
 						       s->proto.scaling == SCALING_NEAREST, e, sizeof e);
 			image_free(&img);
@@ -230,7 +231,7 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		tc.frame_ctx = s;
 	}
 	s->tl = trialloop_new(&tc);
-	s->pre = preload_new(s->disp, RUN_LOOKAHEAD, s->proto.scaling == SCALING_NEAREST, decode_image, NULL);
+	s->pre = preload_new(s->disp, RUN_LOOKAHEAD, s->proto.scaling == SCALING_NEAREST, decode_image, &s->rig);
 	if (!s->pre) {
 		*err = xasprintf("cannot start the image preloader");
 		return -1;
