@@ -42,7 +42,7 @@ BINDIR   ?= $(PREFIX)/bin
 MANDIR   ?= $(PREFIX)/share/man
 
 .PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets soak compilers \
-        man install uninstall
+        man install uninstall layers
 all: $(BUILD)/tachist
 
 $(BUILD)/tachist: $(OBJ)
@@ -90,7 +90,12 @@ SAN := -O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize
 test: deps
 	$(MAKE) --no-print-directory BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
 	$(MAKE) --no-print-directory demo-assets
+	$(MAKE) --no-print-directory layers
 	@BUILD=build/san sh tests/run.sh
+
+# Every #include against the layer rules in docs/design.md.
+layers:
+	@sh tests/tools/layers.sh
 
 bench: deps
 	$(MAKE) --no-print-directory BUILD=build/rel CFLAGS="-O2 -g -DNDEBUG" check-build

@@ -29,6 +29,9 @@ void diag_clear(struct diag_list *d);
 void diag_add(struct diag_list *d, enum diag_level level, const char *file, int line,
 	      const char *fmt, ...) __attribute__((format(printf, 5, 6)));
 size_t diag_count(const struct diag_list *d, enum diag_level level);
+/* Orders the diagnostics by file (in the order files were first mentioned), then by line (whole-
+ * file messages first), keeping the order of discovery otherwise: how people read them. */
+void diag_sort(struct diag_list *d);
 /* "FILE:LINE: error: message" (LINE left out when 0, FILE when NULL). */
 void diag_format(const struct diag *g, char *buf, size_t len);
 

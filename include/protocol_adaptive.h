@@ -9,7 +9,7 @@
 #ifndef TACHIST_PROTOCOL_ADAPTIVE_H
 #define TACHIST_PROTOCOL_ADAPTIVE_H
 
-#include "protocol.h"
+#include "protocol_file.h"
 
 extern const struct protocol_section protocol_adaptive_section;
 

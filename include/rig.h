@@ -1,8 +1,8 @@
-/* rig — the observer's display as the experimenter describes it (an INI profile).
+/* rig — the observer's display as the experimenter describes it, as plain data (a core header).
  *
  * Sizes in cm and px, viewing distance in cm, nominal refresh in Hz, an optional photodiode
- * marker. Loaded by io/rig.c; used by geometry, timing plans, the presenter and the store (which
- * keeps the file's text verbatim). */
+ * marker. Read from its INI profile by rig_file.h (app/io/rig.c); used by geometry, timing plans,
+ * the presenter and the store (which keeps the file's text verbatim). */
 #ifndef TACHIST_RIG_H
 #define TACHIST_RIG_H
 
@@ -24,12 +24,5 @@ struct rig {
 	int marker_px;     /* side of the square marker patch */
 	int max_image_side; /* widest or tallest image file accepted, px (default: image.h's) */
 };
-
-/* Loads and validates PATH; every problem goes to D as FILE:LINE. Returns 0 when usable, -1 when
- * any error was found (R is then cleared). R must be released with rig_clear. */
-int rig_load(const char *path, struct rig *r, struct diag_list *d);
-/* Parses rig text already in memory (PATH used only for messages). */
-int rig_parse(const char *path, const char *text, struct rig *r, struct diag_list *d);
-void rig_clear(struct rig *r);
 
 #endif

@@ -159,9 +159,11 @@ struct run_block_summary {
 
 struct run_session;
 
-/* Loads protocol, rig and list, builds the plan, opens the store and the display, and begins a new
- * session or reopens opt->resume_id. Problems with the user's files go to D (FILE:LINE); other
- * failures come back as NULL with a malloc'd sentence in *ERR. A resume is refused (NULL) when the
+/* Loads protocol, rig, list and images through the loader `check` uses (inputs.h), builds the
+ * plan, opens the store and the display, and begins a new session or reopens opt->resume_id.
+ * Anything check would call an error refuses the session before it begins. Problems with the
+ * user's files go to D (FILE:LINE); other failures come back as NULL with a malloc'd sentence in
+ * *ERR. A resume is refused (NULL) when the
  * protocol or the stimulus list changed since the session began. */
 struct run_session *run_open(const struct run_options *opt, struct diag_list *d, char **err);
 

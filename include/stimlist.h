@@ -1,8 +1,9 @@
-/* stimlist — the stimulus list: a CSV file (RFC 4180, parsed with libcsv) with one image per row.
+/* stimlist — the stimulus list as plain data (a core header): one image per row.
  *
  * Required columns `image` and `category`; optional `level` (a number) and `source` (the clean image
  * a perturbed one was made from); every further column is a label carried into exported tables.
- * Image paths are relative to the list file and stored resolved. */
+ * Image paths are relative to the list file and stored resolved. The pure lookups declared here
+ * live in app/core/stimlist_lookup.c; reading the CSV file is stimlist_file.h (app/io/stimlist.c). */
 #ifndef TACHIST_STIMLIST_H
 #define TACHIST_STIMLIST_H
 
@@ -36,13 +37,6 @@ struct stimlist {
 	bool has_level_column, has_source_column;
 };
 
-/* Loads PATH. With a protocol P, categories are checked against its choices. Every problem goes to
- * D as FILE:LINE. Returns 0 when usable, -1 on any error. */
-int stimlist_load(const char *path, const struct protocol *p, struct stimlist *l,
-		  struct diag_list *d);
-int stimlist_parse(const char *path, const char *data, size_t len, const struct protocol *p,
-		   struct stimlist *l, struct diag_list *d);
-void stimlist_clear(struct stimlist *l);
 /* The value of COLUMN for item S ("image", "category", "level", "source" or a label), or NULL when
  * the list has no such column. */
 const char *stimlist_value(const struct stimlist *l, const struct stim *s, const char *column,

@@ -8,9 +8,9 @@
 #include <cmocka.h>
 
 #include "plan.h"
-#include "protocol.h"
-#include "rig.h"
-#include "stimlist.h"
+#include "protocol_file.h"
+#include "rig_file.h"
+#include "stimlist_file.h"
 
 struct fixture {
 	struct protocol p;

@@ -6,7 +6,7 @@
 #include <string.h>
 #include <cmocka.h>
 
-#include "protocol.h"
+#include "protocol_file.h"
 
 static const char *good =
 	"[experiment]\n"

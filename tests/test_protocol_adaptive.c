@@ -10,7 +10,7 @@
 #include <cmocka.h>
 
 #include "adapt.h"
-#include "protocol.h"
+#include "protocol_file.h"
 
 /* Lines 1-13; the adaptive section of each test starts on line 14. */
 static const char *head =

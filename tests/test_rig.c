@@ -4,7 +4,7 @@
 #include <stddef.h>
 #include <cmocka.h>
 
-#include "rig.h"
+#include "rig_file.h"
 
 static const char *msg(const struct diag_list *d, size_t i)
 {

@@ -5,8 +5,8 @@
 #include <string.h>
 #include <cmocka.h>
 
-#include "protocol.h"
-#include "stimlist.h"
+#include "protocol_file.h"
+#include "stimlist_file.h"
 
 static const char *msg(const struct diag_list *d, size_t i)
 {

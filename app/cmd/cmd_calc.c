@@ -14,7 +14,7 @@
 #include "cmd.h"
 #include "frames.h"
 #include "geom.h"
-#include "rig.h"
+#include "rig_file.h"
 #include "stats.h"
 
 #define CALC_MAX_OPTS 6

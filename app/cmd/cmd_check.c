@@ -1,15 +1,13 @@
 /* cmd_check — `tachist check PROTOCOL [--rig FILE] [--json]`: everything that can be known before an
  * observer sits down.
  *
- * Loads the protocol, the rig and the stimulus list (each reports every problem it finds), opens
- * every image the list names (and the mask image) with the same decoder the presenter uses, checks
- * that the stimulus fits the screen, builds the plan and prints it: blocks, trials, conditions,
+ * Loads the protocol, the rig, the stimulus list and every image through the one loader `run` uses
+ * (inputs.h: each part reports every problem it finds, images are decoded with the same decoder the
+ * presenter uses, the stimulus must fit the screen), and prints the plan: blocks, trials, conditions,
  * each epoch in frames with its actual ms, stimulus size, estimated length. Diagnostics go to stderr
  * as FILE:LINE: level: message (and into the JSON document with --json). Exit 0 when the session
  * can run (warnings allowed), 1 when any error was found, 2 on usage. */
 #include <cJSON.h>
-#include <errno.h>
-#include <unistd.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -17,159 +15,10 @@
 #include "adapt.h"
 #include "cmd.h"
 #include "geom.h"
-#include "image.h"
-#include "plan.h"
-#include "protocol.h"
-#include "rig.h"
-#include "stimlist.h"
+#include "inputs.h"
 
 /* The seed the printed plan is built with; `run` draws its own. */
 #define CHECK_SEED 1
-
-struct image_summary {
-	int max_w, max_h;          /* largest decoded image */
-	int min_side;              /* smallest longer side */
-	size_t n_ok;
-	const char *smallest;      /* path of the image with min_side */
-};
-
-
-/* Rows sorted by path, so each file is opened once however often the list names it. */
-struct by_path {
-	const char *path;
-	size_t i;
-};
-
-static int cmp_path(const void *a, const void *b)
-{
-	const struct by_path *x = a, *y = b;
-	int c = strcmp(x->path, y->path);
-	return c ? c : (x->i > y->i) - (x->i < y->i);
-}
-
-static void probe_images(const struct stimlist *l, long max_side, struct image_summary *sum,
-			 struct diag_list *d, int **w_out, int **h_out)
-{
-	struct by_path *sorted = xmalloc((l->n ? l->n : 1) * sizeof *sorted);
-	size_t *idx = xmalloc((l->n ? l->n : 1) * sizeof *idx);
-	int *w = xcalloc(l->n ? l->n : 1, sizeof *w), *h = xcalloc(l->n ? l->n : 1, sizeof *h);
-	for (size_t i = 0; i < l->n; i++) {
-		sorted[i].path = l->items[i].path;
-		sorted[i].i = i;
-	}
-	qsort(sorted, l->n, sizeof *sorted, cmp_path);
-	for (size_t i = 0; i < l->n; i++)
-		idx[i] = sorted[i].i;
-	free(sorted);
-	for (size_t k = 0; k < l->n; k++) {
-		const struct stim *s = &l->items[idx[k]];
-		if (k > 0 && !strcmp(s->path, l->items[idx[k - 1]].path)) {
-			w[idx[k]] = w[idx[k - 1]];
-			h[idx[k]] = h[idx[k - 1]];
-			continue;
-		}
-		struct image_info info;
-		char err[512];
-		if (image_probe_max(s->path, max_side, &info, err, sizeof err)) {
-			diag_add(d, DIAG_ERROR, l->path, s->line, "image '%s': %s", s->image, err);
-			continue;
-		}
-		w[idx[k]] = info.width;
-		h[idx[k]] = info.height;
-		sum->n_ok++;
-		if (info.width > sum->max_w)
-			sum->max_w = info.width;
-		if (info.height > sum->max_h)
-			sum->max_h = info.height;
-		int side = info.width > info.height ? info.width : info.height;
-		if (!sum->min_side || side < sum->min_side) {
-			sum->min_side = side;
-			sum->smallest = s->image;
-		}
-	}
-	free(idx);
-	*w_out = w;
-	*h_out = h;
-}
-
-/* The stimulus is drawn with its longer side STIM_PX: an image that then overflows the screen is
- * an error (reported once, at size_deg), one drawn above its own size a warning. */
-static void check_fit(const struct protocol *p, const struct rig *r, const struct stimlist *l,
-		      const int *w, const int *h, int stim_px, struct diag_list *d)
-{
-	size_t over = 0, up = 0;
-	double worst_up = 1;
-	const char *over_img = NULL, *up_img = NULL;
-	int over_w = 0, over_h = 0;
-	for (size_t i = 0; i < l->n; i++) {
-		if (!w[i] || !h[i])
-			continue;
-		int side = w[i] > h[i] ? w[i] : h[i];
-		double sw = (double)stim_px * w[i] / side, sh = (double)stim_px * h[i] / side;
-		if (lround(sw) > r->width_px || lround(sh) > r->height_px) {
-			if (!over++) {
-				over_img = l->items[i].image;
-				over_w = (int)lround(sw);
-				over_h = (int)lround(sh);
-			}
-		}
-		if (stim_px > side) {
-			up++;
-			if ((double)stim_px / side > worst_up) {
-				worst_up = (double)stim_px / side;
-				up_img = l->items[i].image;
-			}
-		}
-	}
-	if (over)
-		diag_add(d, DIAG_ERROR, p->path, p->size_line, "size_deg = %g is %d px: %zu image%s "
-			 "do%s not fit the %dx%d px screen (for example '%s' at %dx%d px)", p->size_deg,
-			 stim_px, over, over == 1 ? "" : "s", over == 1 ? "es" : "", r->width_px,
-			 r->height_px, over_img, over_w, over_h);
-	if (up)
-		diag_add(d, DIAG_WARNING, p->path, p->size_line, "size_deg = %g is %d px: %zu image%s "
-			 "must be scaled up beyond native size (up to %.2fx, for example '%s')",
-			 p->size_deg, stim_px, up, up == 1 ? "" : "s", worst_up, up_img);
-}
-
-struct ranked {
-	struct diag g;
-	size_t rank, index;
-};
-
-static int cmp_ranked(const void *a, const void *b)
-{
-	const struct ranked *x = a, *y = b;
-	if (x->rank != y->rank)
-		return x->rank < y->rank ? -1 : 1;
-	if (x->g.line != y->g.line)
-		return x->g.line < y->g.line ? -1 : 1;
-	return x->index < y->index ? -1 : x->index > y->index;
-}
-
-/* Orders the diagnostics by file (in the order files were first mentioned), then by line (whole-
- * file messages first), keeping the order of discovery otherwise. */
-static void sort_diags(struct diag_list *d)
-{
-	if (d->n < 2)
-		return;
-	struct ranked *v = xmalloc(d->n * sizeof *v);
-	for (size_t i = 0; i < d->n; i++) {
-		v[i].g = d->v[i];
-		v[i].index = i;
-		v[i].rank = i;
-		for (size_t k = 0; k < i; k++)
-			if ((!d->v[k].file && !d->v[i].file) ||
-			    (d->v[k].file && d->v[i].file && !strcmp(d->v[k].file, d->v[i].file))) {
-				v[i].rank = v[k].rank;
-				break;
-			}
-	}
-	qsort(v, d->n, sizeof *v, cmp_ranked);
-	for (size_t i = 0; i < d->n; i++)
-		d->v[i] = v[i].g;
-	free(v);
-}
 
 static void block_conditions(const struct plan *pl, size_t b, const struct stimlist *l,
 			     size_t *nlevels, size_t *ncats)
@@ -367,50 +216,21 @@ int cmd_check(int argc, char **argv)
 		return opts_usage("check", "name the protocol file");
 	struct diag_list d;
 	diag_init(&d);
-	struct protocol p;
-	struct rig r;
-	struct stimlist l;
-	struct plan pl;
-	memset(&l, 0, sizeof l);
-	memset(&pl, 0, sizeof pl);
-	int have_plan = 0;
-	int *w = NULL, *h = NULL;
-	int bad = protocol_load(proto_path, &p, &d) != 0;
 	char *rig_path = cmd_rig_path(rig_opt);
-	int rig_ok = 0;
-	if (!rig_path) {
-		diag_add(&d, DIAG_ERROR, NULL, 0, "no rig profile found; give --rig FILE");
-		memset(&r, 0, sizeof r);
-	} else {
-		rig_ok = rig_load(rig_path, &r, &d) == 0;
-	}
-	int list_ok = 0;
-	if (p.stimuli && access(p.stimuli, R_OK) != 0) {
-		diag_add(&d, DIAG_ERROR, p.path, p.stimuli_line, "list: cannot read %s: %s", p.stimuli,
-			 strerror(errno));
-	} else if (p.stimuli) {
-		list_ok = stimlist_load(p.stimuli, p.nchoices ? &p : NULL, &l, &d) == 0;
-		struct image_summary sum = {0};
-		long max_side = rig_ok ? r.max_image_side : 0;
-		probe_images(&l, max_side, &sum, &d, &w, &h);
-		if (p.mask == MASK_IMAGE && p.mask_image) {
-			struct image_info info;
-			char err[512];
-			if (image_probe_max(p.mask_image, max_side, &info, err, sizeof err))
-				diag_add(&d, DIAG_ERROR, p.path, p.mask_image_line, "mask_image: %s", err);
-		}
-	}
-	if (!bad && rig_ok && list_ok) {
-		have_plan = plan_build(&p, &l, &r, CHECK_SEED, &pl, &d) == 0;
-		if (have_plan)
-			check_fit(&p, &r, &l, w, h, pl.stim_px, &d);
-	} else if (!bad && list_ok) {
-		plan_check_blocks(&p, &l, &d);
-	}
-	sort_diags(&d);
+	struct inputs_options io = {.protocol_path = proto_path, .rig_path = rig_path,
+				    .missing_rig = "no rig profile found; give --rig FILE",
+				    .seed = CHECK_SEED};
+	struct inputs in;
+	inputs_load(&io, &in, &d);
+	const struct protocol *p = &in.proto;
+	const struct rig *r = &in.rig;
+	const struct stimlist *l = &in.list;
+	const struct plan *pl = &in.plan;
+	int have_plan = in.have_plan;
+	diag_sort(&d);
 	int ok = diag_count(&d, DIAG_ERROR) == 0;
 	if (json) {
-		cJSON *j = json_doc(&p, &r, &l, ok && have_plan ? &pl : NULL, &d, ok);
+		cJSON *j = json_doc(p, r, l, ok && have_plan ? pl : NULL, &d, ok);
 		char *s = cJSON_Print(j);
 		printf("%s\n", s);
 		free(s);
@@ -418,18 +238,13 @@ int cmd_check(int argc, char **argv)
 	}
 	cmd_print_diags(&d, stderr);
 	if (!json && ok && have_plan)
-		print_text(&p, &r, &l, &pl);
+		print_text(p, r, l, pl);
 	if (!ok)
 		fprintf(stderr, "%zu error%s, %zu warning%s\n", diag_count(&d, DIAG_ERROR),
 			diag_count(&d, DIAG_ERROR) == 1 ? "" : "s", diag_count(&d, DIAG_WARNING),
 			diag_count(&d, DIAG_WARNING) == 1 ? "" : "s");
-	free(w);
-	free(h);
 	free(rig_path);
-	plan_clear(&pl);
-	stimlist_clear(&l);
-	rig_clear(&r);
-	protocol_clear(&p);
+	inputs_clear(&in);
 	diag_clear(&d);
 	return ok ? EXIT_OK : EXIT_PROBLEMS;
 }

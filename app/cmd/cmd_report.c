@@ -258,6 +258,113 @@ static const char *group_of(struct loaded *L, const struct store_trial *t, const
 	return intern(&L->strings, buf);
 }
 
+/* The number of choices must agree across the sessions pooled: sets L->m. Returns 0 or -1 after
+ * a message. */
+static int load_choices(struct store_iter *it, size_t nss, struct loaded *L)
+{
+	for (size_t i = 0; i < nss; i++) {
+		size_t nc = 0;
+		store_iter_choices(it, i, &nc);
+		if (nc == 0)
+			continue;
+		if (L->m && (int)nc != L->m) {
+			fprintf(stderr, "tachist report: the selected sessions have different numbers of "
+				"choices (%d and %zu); report them separately with --session or --subject\n",
+				L->m, nc);
+			return -1;
+		}
+		L->m = (int)nc;
+	}
+	return 0;
+}
+
+/* COL[i] gets the label column of the i-th --by name. Returns 0 or -1 after a message. */
+static int load_by_columns(struct store_iter *it, const struct loaded *L, int col[16])
+{
+	size_t nlab;
+	const char *const *labs = store_iter_label_names(it, &nlab);
+	if (L->nby > 16) {
+		fprintf(stderr, "tachist report: --by takes at most 16 columns\n");
+		return -1;
+	}
+	for (size_t i = 0; i < L->nby; i++) {
+		col[i] = -1;
+		for (size_t j = 0; j < nlab; j++)
+			if (!strcmp(labs[j], L->by[i]))
+				col[i] = (int)j;
+		if (col[i] < 0) {
+			fprintf(stderr, "tachist report: --by: no label column '%s' in the selected "
+				"sessions (they have:", L->by[i]);
+			for (size_t j = 0; j < nlab; j++)
+				fprintf(stderr, " %s", labs[j]);
+			fprintf(stderr, "%s)\n", nlab ? "" : " none");
+			return -1;
+		}
+	}
+	return 0;
+}
+
+/* Appends the analysis row of stored trial T (strings interned). */
+static struct analysis_row *load_row(struct loaded *L, const struct store_trial *t, const int *col)
+{
+	if (L->nrows == L->cap) {
+		L->cap = L->cap ? 2 * L->cap : 1024;
+		L->rows = xrealloc(L->rows, L->cap * sizeof *L->rows);
+	}
+	struct analysis_row *a = &L->rows[L->nrows++];
+	a->session = intern(&L->strings, t->session_id);
+	a->subject = intern(&L->strings, t->subject);
+	a->block = t->block;
+	a->block_name = intern(&L->strings, t->block_name);
+	a->practice = t->practice;
+	a->group = group_of(L, t, col);
+	a->image = intern(&L->strings, t->image ? t->image : "");
+	a->category = intern(&L->strings, t->category ? t->category : "");
+	a->response = t->response_category ? intern(&L->strings, t->response_category)
+		      : t->response >= 0 ? intern(&L->strings, "?") : NULL;
+	a->has_level = t->has_level;
+	a->level = t->level;
+	a->correct = t->correct;
+	a->timed_out = t->timed_out;
+	a->anticipation = t->anticipation;
+	a->has_rt = t->has_rt;
+	a->rt_ms = t->rt_ms;
+	a->frames_planned = t->frames_planned;
+	a->frames_actual = t->frames_actual;
+	a->dropped_frames = t->dropped_frames;
+	a->timing_ok = t->timing_ok;
+	return a;
+}
+
+/* Adds the frame intervals of stored trial T (row A) to its session's; *SI is the session index
+ * the search starts from (rows come session by session), FCAP the capacities. */
+static void load_frames(struct store *s, struct loaded *L, const struct store_trial *t,
+			const struct analysis_row *a, size_t *si, size_t *fcap)
+{
+	while (*si < L->nsess && strcmp(L->sess[*si].id, a->session))
+		(*si)++;
+	if (*si == L->nsess)
+		*si = 0;
+	int64_t *flips = NULL;
+	size_t nf = 0;
+	char *err = NULL;
+	if (store_frames_load(s, t->session_id, t->trial, &flips, &nf, &err) < 0) {
+		fprintf(stderr, "tachist report: %s\n", err);
+		free(err);
+		return;
+	}
+	struct analysis_session *as = &L->sess[*si];
+	for (size_t k = 1; k < nf; k++) {
+		if (as->nframe_ms == fcap[*si]) {
+			fcap[*si] = fcap[*si] ? 2 * fcap[*si] : 1024;
+			L->frames[*si] = xrealloc(L->frames[*si], fcap[*si] * sizeof **L->frames);
+		}
+		L->frames[*si][as->nframe_ms++] = (double)(flips[k] - flips[k - 1]) / 1e6;
+	}
+	as->frame_ms = L->frames[*si];
+	free(flips);
+}
+
 static int load(struct store *s, const struct ropts *o, struct loaded *L, bool want_frames)
 {
 	char *err = NULL;
@@ -272,6 +379,7 @@ static int load(struct store *s, const struct ropts *o, struct loaded *L, bool w
 	int rc = -1;
 	size_t nss;
 	const struct store_session *ss = store_iter_sessions(it, &nss);
+	int col[16];
 	if (nss == 0) {
 		if (o->subject)
 			fprintf(stderr, "tachist report: %s: no sessions for subject %s\n", o->db, o->subject);
@@ -279,41 +387,8 @@ static int load(struct store *s, const struct ropts *o, struct loaded *L, bool w
 			fprintf(stderr, "tachist report: %s: the database holds no sessions yet\n", o->db);
 		goto out;
 	}
-	/* The number of choices must agree across the sessions pooled. */
-	for (size_t i = 0; i < nss; i++) {
-		size_t nc = 0;
-		store_iter_choices(it, i, &nc);
-		if (nc == 0)
-			continue;
-		if (L->m && (int)nc != L->m) {
-			fprintf(stderr, "tachist report: the selected sessions have different numbers of "
-				"choices (%d and %zu); report them separately with --session or --subject\n",
-				L->m, nc);
-			goto out;
-		}
-		L->m = (int)nc;
-	}
-	size_t nlab;
-	const char *const *labs = store_iter_label_names(it, &nlab);
-	int col[16];
-	if (L->nby > 16) {
-		fprintf(stderr, "tachist report: --by takes at most 16 columns\n");
+	if (load_choices(it, nss, L) || load_by_columns(it, L, col))
 		goto out;
-	}
-	for (size_t i = 0; i < L->nby; i++) {
-		col[i] = -1;
-		for (size_t j = 0; j < nlab; j++)
-			if (!strcmp(labs[j], L->by[i]))
-				col[i] = (int)j;
-		if (col[i] < 0) {
-			fprintf(stderr, "tachist report: --by: no label column '%s' in the selected "
-				"sessions (they have:", L->by[i]);
-			for (size_t j = 0; j < nlab; j++)
-				fprintf(stderr, " %s", labs[j]);
-			fprintf(stderr, "%s)\n", nlab ? "" : " none");
-			goto out;
-		}
-	}
 	L->sess = xcalloc(nss, sizeof *L->sess);
 	L->frames = xcalloc(nss, sizeof *L->frames);
 	L->nsess = nss;
@@ -328,56 +403,9 @@ static int load(struct store *s, const struct ropts *o, struct loaded *L, bool w
 	int r;
 	size_t si = 0;
 	while ((r = store_iter_next(it, &t, NULL, &err)) == 1) {
-		if (L->nrows == L->cap) {
-			L->cap = L->cap ? 2 * L->cap : 1024;
-			L->rows = xrealloc(L->rows, L->cap * sizeof *L->rows);
-		}
-		struct analysis_row *a = &L->rows[L->nrows++];
-		a->session = intern(&L->strings, t->session_id);
-		a->subject = intern(&L->strings, t->subject);
-		a->block = t->block;
-		a->block_name = intern(&L->strings, t->block_name);
-		a->practice = t->practice;
-		a->group = group_of(L, t, col);
-		a->image = intern(&L->strings, t->image ? t->image : "");
-		a->category = intern(&L->strings, t->category ? t->category : "");
-		a->response = t->response_category ? intern(&L->strings, t->response_category)
-			      : t->response >= 0 ? intern(&L->strings, "?") : NULL;
-		a->has_level = t->has_level;
-		a->level = t->level;
-		a->correct = t->correct;
-		a->timed_out = t->timed_out;
-		a->anticipation = t->anticipation;
-		a->has_rt = t->has_rt;
-		a->rt_ms = t->rt_ms;
-		a->frames_planned = t->frames_planned;
-		a->frames_actual = t->frames_actual;
-		a->dropped_frames = t->dropped_frames;
-		a->timing_ok = t->timing_ok;
-		if (!want_frames)
-			continue;
-		while (si < nss && strcmp(L->sess[si].id, a->session))
-			si++;
-		if (si == nss)
-			si = 0;
-		int64_t *flips = NULL;
-		size_t nf = 0;
-		if (store_frames_load(s, t->session_id, t->trial, &flips, &nf, &err) < 0) {
-			fprintf(stderr, "tachist report: %s\n", err);
-			free(err);
-			err = NULL;
-			continue;
-		}
-		struct analysis_session *as = &L->sess[si];
-		for (size_t k = 1; k < nf; k++) {
-			if (as->nframe_ms == fcap[si]) {
-				fcap[si] = fcap[si] ? 2 * fcap[si] : 1024;
-				L->frames[si] = xrealloc(L->frames[si], fcap[si] * sizeof **L->frames);
-			}
-			L->frames[si][as->nframe_ms++] = (double)(flips[k] - flips[k - 1]) / 1e6;
-		}
-		as->frame_ms = L->frames[si];
-		free(flips);
+		const struct analysis_row *a = load_row(L, t, col);
+		if (want_frames)
+			load_frames(s, L, t, a, &si, fcap);
 	}
 	free(fcap);
 	if (r < 0) {
@@ -646,20 +674,9 @@ static cJSON *json_interval(const double ci[2], bool ok)
 	return a;
 }
 
-static cJSON *json_doc(const struct analysis *a, const struct ropts *o, const struct loaded *L)
+/* The condition cells: proportion correct, d', RTs. */
+static void json_conditions(cJSON *j, const struct analysis *a)
 {
-	cJSON *j = cJSON_CreateObject();
-	cJSON_AddStringToObject(j, "database", o->db);
-	cJSON_AddNumberToObject(j, "choices", a->opts.m);
-	cJSON_AddNumberToObject(j, "chance", 1.0 / a->opts.m);
-	cJSON_AddNumberToObject(j, "trials", (double)a->nrows);
-	cJSON_AddNumberToObject(j, "practice_trials", (double)a->npractice);
-	cJSON_AddNumberToObject(j, "subjects", (double)a->nsubjects);
-	cJSON_AddStringToObject(j, "interval_method", stats_ci_method_name(a->opts.ci));
-	cJSON_AddNumberToObject(j, "interval_level", a->opts.conf);
-	cJSON *by = cJSON_AddArrayToObject(j, "by");
-	for (size_t i = 0; i < L->nby; i++)
-		cJSON_AddItemToArray(by, cJSON_CreateString(L->by[i]));
 	cJSON *cells = cJSON_AddArrayToObject(j, "conditions");
 	for (size_t i = 0; i < a->ncells; i++) {
 		const struct analysis_cell *c = &a->cells[i];
@@ -686,80 +703,98 @@ static cJSON *json_doc(const struct analysis *a, const struct ropts *o, const st
 		cJSON_AddNumberToObject(e, "timeouts", (double)c->timeouts);
 		cJSON_AddItemToArray(cells, e);
 	}
-	cJSON *fits = cJSON_AddArrayToObject(j, "fits");
-	for (size_t i = 0; i < a->nseries; i++) {
-		const struct analysis_series *s = &a->series[i];
-		const struct fit_result *r = &s->fit;
-		bool ok = r->status == FIT_OK;
-		cJSON *e = cJSON_CreateObject();
-		cJSON_AddItemToObject(e, "subject", jstr(s->subject));
-		cJSON_AddNumberToObject(e, "block", s->block);
-		cJSON_AddItemToObject(e, "block_name", jstr(s->block_name));
-		cJSON_AddStringToObject(e, "group", s->group ? s->group : "");
-		cJSON_AddStringToObject(e, "status", ok ? "ok" : r->status == FIT_NO_CONVERGENCE ?
-						     "no_convergence" : "unsupported");
-		if (!ok)
-			cJSON_AddStringToObject(e, "message", r->reason);
-		cJSON_AddStringToObject(e, "shape", psyfn_shape_name(r->f.shape));
-		cJSON_AddItemToObject(e, "alpha", jnum(ok ? r->f.alpha : NAN));
-		cJSON_AddItemToObject(e, "beta", jnum(ok ? r->f.beta : NAN));
-		cJSON_AddBoolToObject(e, "slope_bounded", ok && r->slope_bounded);
-		cJSON_AddItemToObject(e, "lambda", jnum(ok ? r->f.lambda : NAN));
-		cJSON_AddNumberToObject(e, "pc", r->pc_threshold);
-		cJSON_AddItemToObject(e, "threshold", jnum(ok && r->threshold_ok ? r->threshold : NAN));
-		bool ci = ok && r->has_ci;
-		cJSON_AddItemToObject(e, "threshold_lower", jnum(ci ? r->threshold_ci[0] : NAN));
-		cJSON_AddItemToObject(e, "threshold_upper", jnum(ci ? r->threshold_ci[1] : NAN));
-		cJSON_AddItemToObject(e, "alpha_interval", json_interval(r->alpha_ci, ci));
-		cJSON_AddItemToObject(e, "beta_interval", json_interval(r->beta_ci, ci));
-		cJSON_AddItemToObject(e, "lambda_interval", json_interval(r->lambda_ci, ci));
-		cJSON_AddItemToObject(e, "deviance", jnum(ok ? r->deviance : NAN));
-		cJSON_AddItemToObject(e, "dof", ok ? cJSON_CreateNumber(r->dof) : cJSON_CreateNull());
-		cJSON_AddNumberToObject(e, "bootstrap_samples", r->nboot);
-		cJSON_AddNumberToObject(e, "bootstrap_failed", r->nboot_failed);
-		cJSON *pts = cJSON_AddArrayToObject(e, "points");
-		for (size_t p = 0; p < s->npts; p++) {
-			cJSON *q = cJSON_CreateObject();
-			cJSON_AddNumberToObject(q, "level", s->pts[p].level);
-			cJSON_AddNumberToObject(q, "n", (double)s->pts[p].n);
-			cJSON_AddNumberToObject(q, "k", (double)s->pts[p].k);
-			cJSON_AddItemToArray(pts, q);
-		}
-		cJSON_AddItemToArray(fits, e);
+}
+
+/* One psychometric fit with its points. */
+static cJSON *json_fit(const struct analysis_series *s)
+{
+	const struct fit_result *r = &s->fit;
+	bool ok = r->status == FIT_OK;
+	cJSON *e = cJSON_CreateObject();
+	cJSON_AddItemToObject(e, "subject", jstr(s->subject));
+	cJSON_AddNumberToObject(e, "block", s->block);
+	cJSON_AddItemToObject(e, "block_name", jstr(s->block_name));
+	cJSON_AddStringToObject(e, "group", s->group ? s->group : "");
+	cJSON_AddStringToObject(e, "status", ok ? "ok" : r->status == FIT_NO_CONVERGENCE ?
+					     "no_convergence" : "unsupported");
+	if (!ok)
+		cJSON_AddStringToObject(e, "message", r->reason);
+	cJSON_AddStringToObject(e, "shape", psyfn_shape_name(r->f.shape));
+	cJSON_AddItemToObject(e, "alpha", jnum(ok ? r->f.alpha : NAN));
+	cJSON_AddItemToObject(e, "beta", jnum(ok ? r->f.beta : NAN));
+	cJSON_AddBoolToObject(e, "slope_bounded", ok && r->slope_bounded);
+	cJSON_AddItemToObject(e, "lambda", jnum(ok ? r->f.lambda : NAN));
+	cJSON_AddNumberToObject(e, "pc", r->pc_threshold);
+	cJSON_AddItemToObject(e, "threshold", jnum(ok && r->threshold_ok ? r->threshold : NAN));
+	bool ci = ok && r->has_ci;
+	cJSON_AddItemToObject(e, "threshold_lower", jnum(ci ? r->threshold_ci[0] : NAN));
+	cJSON_AddItemToObject(e, "threshold_upper", jnum(ci ? r->threshold_ci[1] : NAN));
+	cJSON_AddItemToObject(e, "alpha_interval", json_interval(r->alpha_ci, ci));
+	cJSON_AddItemToObject(e, "beta_interval", json_interval(r->beta_ci, ci));
+	cJSON_AddItemToObject(e, "lambda_interval", json_interval(r->lambda_ci, ci));
+	cJSON_AddItemToObject(e, "deviance", jnum(ok ? r->deviance : NAN));
+	cJSON_AddItemToObject(e, "dof", ok ? cJSON_CreateNumber(r->dof) : cJSON_CreateNull());
+	cJSON_AddNumberToObject(e, "bootstrap_samples", r->nboot);
+	cJSON_AddNumberToObject(e, "bootstrap_failed", r->nboot_failed);
+	cJSON *pts = cJSON_AddArrayToObject(e, "points");
+	for (size_t p = 0; p < s->npts; p++) {
+		cJSON *q = cJSON_CreateObject();
+		cJSON_AddNumberToObject(q, "level", s->pts[p].level);
+		cJSON_AddNumberToObject(q, "n", (double)s->pts[p].n);
+		cJSON_AddNumberToObject(q, "k", (double)s->pts[p].k);
+		cJSON_AddItemToArray(pts, q);
 	}
+	return e;
+}
+
+/* The psychometric fits and the categories. */
+static void json_fits(cJSON *j, const struct analysis *a)
+{
+	cJSON *fits = cJSON_AddArrayToObject(j, "fits");
+	for (size_t i = 0; i < a->nseries; i++)
+		cJSON_AddItemToArray(fits, json_fit(&a->series[i]));
 	cJSON *cats = cJSON_AddArrayToObject(j, "categories");
 	for (size_t i = 0; i < a->ncat; i++)
 		cJSON_AddItemToArray(cats, cJSON_CreateString(a->cats[i]));
-	cJSON *confs = cJSON_AddArrayToObject(j, "confusions");
-	for (size_t i = 0; i < a->nconf; i++) {
-		const struct analysis_confusion *c = &a->conf[i];
-		cJSON *e = cJSON_CreateObject();
-		cJSON_AddItemToObject(e, "level", c->has_level ? cJSON_CreateNumber(c->level)
-							       : cJSON_CreateNull());
-		cJSON *rows = cJSON_AddArrayToObject(e, "counts");
-		cJSON *props = cJSON_AddArrayToObject(e, "row_proportions");
-		for (size_t t = 0; t < a->ncat; t++) {
-			cJSON *r = cJSON_CreateArray(), *p = cJSON_CreateArray();
-			for (size_t ch = 0; ch < a->ncat; ch++) {
-				unsigned long n = c->counts[t * a->ncat + ch];
-				cJSON_AddItemToArray(r, cJSON_CreateNumber((double)n));
-				cJSON_AddItemToArray(p, jnum(c->row_n[t] ? (double)n / (double)c->row_n[t]
-									  : NAN));
-			}
-			cJSON_AddItemToArray(rows, r);
-			cJSON_AddItemToArray(props, p);
+}
+
+/* One confusion matrix (counts, row proportions, the most confused pairs). */
+static cJSON *json_confusion(const struct analysis *a, const struct analysis_confusion *c)
+{
+	cJSON *e = cJSON_CreateObject();
+	cJSON_AddItemToObject(e, "level", c->has_level ? cJSON_CreateNumber(c->level)
+						       : cJSON_CreateNull());
+	cJSON *rows = cJSON_AddArrayToObject(e, "counts");
+	cJSON *props = cJSON_AddArrayToObject(e, "row_proportions");
+	for (size_t t = 0; t < a->ncat; t++) {
+		cJSON *r = cJSON_CreateArray(), *p = cJSON_CreateArray();
+		for (size_t ch = 0; ch < a->ncat; ch++) {
+			unsigned long n = c->counts[t * a->ncat + ch];
+			cJSON_AddItemToArray(r, cJSON_CreateNumber((double)n));
+			cJSON_AddItemToArray(p, jnum(c->row_n[t] ? (double)n / (double)c->row_n[t]
+								  : NAN));
 		}
-		cJSON *top = cJSON_AddArrayToObject(e, "most_confused");
-		for (size_t p = 0; p < c->ntop; p++) {
-			cJSON *q = cJSON_CreateObject();
-			cJSON_AddStringToObject(q, "true", a->cats[c->top[p].truth]);
-			cJSON_AddStringToObject(q, "chosen", a->cats[c->top[p].chosen]);
-			cJSON_AddNumberToObject(q, "count", (double)c->top[p].count);
-			cJSON_AddNumberToObject(q, "share", c->top[p].share);
-			cJSON_AddItemToArray(top, q);
-		}
-		cJSON_AddItemToArray(confs, e);
+		cJSON_AddItemToArray(rows, r);
+		cJSON_AddItemToArray(props, p);
 	}
+	cJSON *top = cJSON_AddArrayToObject(e, "most_confused");
+	for (size_t p = 0; p < c->ntop; p++) {
+		cJSON *q = cJSON_CreateObject();
+		cJSON_AddStringToObject(q, "true", a->cats[c->top[p].truth]);
+		cJSON_AddStringToObject(q, "chosen", a->cats[c->top[p].chosen]);
+		cJSON_AddNumberToObject(q, "count", (double)c->top[p].count);
+		cJSON_AddNumberToObject(q, "share", c->top[p].share);
+		cJSON_AddItemToArray(top, q);
+	}
+	return e;
+}
+
+/* Confusion matrices, accuracy per category and per image. */
+static void json_confusions(cJSON *j, const struct analysis *a)
+{
+	cJSON *confs = cJSON_AddArrayToObject(j, "confusions");
+	for (size_t i = 0; i < a->nconf; i++)
+		cJSON_AddItemToArray(confs, json_confusion(a, &a->conf[i]));
 	cJSON *ca = cJSON_AddArrayToObject(j, "category_accuracy");
 	for (size_t i = 0; i < a->ncatacc; i++) {
 		const struct analysis_category *c = &a->catacc[i];
@@ -786,6 +821,11 @@ static cJSON *json_doc(const struct analysis *a, const struct ropts *o, const st
 		cJSON_AddBoolToObject(e, "floor", it->floor);
 		cJSON_AddItemToArray(items, e);
 	}
+}
+
+/* Reaction times and the timing figures of each session. */
+static void json_timing(cJSON *j, const struct analysis *a)
+{
 	cJSON *rt = cJSON_AddObjectToObject(j, "rt");
 	cJSON_AddNumberToObject(rt, "n", (double)a->rt.n);
 	cJSON_AddItemToObject(rt, "median", jnum(a->rt.median));
@@ -812,6 +852,26 @@ static cJSON *json_doc(const struct analysis *a, const struct ropts *o, const st
 		cJSON_AddNumberToObject(e, "timeouts", (double)t->timeouts);
 		cJSON_AddItemToArray(tm, e);
 	}
+}
+
+static cJSON *json_doc(const struct analysis *a, const struct ropts *o, const struct loaded *L)
+{
+	cJSON *j = cJSON_CreateObject();
+	cJSON_AddStringToObject(j, "database", o->db);
+	cJSON_AddNumberToObject(j, "choices", a->opts.m);
+	cJSON_AddNumberToObject(j, "chance", 1.0 / a->opts.m);
+	cJSON_AddNumberToObject(j, "trials", (double)a->nrows);
+	cJSON_AddNumberToObject(j, "practice_trials", (double)a->npractice);
+	cJSON_AddNumberToObject(j, "subjects", (double)a->nsubjects);
+	cJSON_AddStringToObject(j, "interval_method", stats_ci_method_name(a->opts.ci));
+	cJSON_AddNumberToObject(j, "interval_level", a->opts.conf);
+	cJSON *by = cJSON_AddArrayToObject(j, "by");
+	for (size_t i = 0; i < L->nby; i++)
+		cJSON_AddItemToArray(by, cJSON_CreateString(L->by[i]));
+	json_conditions(j, a);
+	json_fits(j, a);
+	json_confusions(j, a);
+	json_timing(j, a);
 	return j;
 }
 

@@ -50,6 +50,7 @@ int cmd_run_session(const struct run_options *o, char id_out[37])
 	diag_init(&d);
 	char *err = NULL;
 	struct run_session *s = run_open(o, &d, &err);
+	diag_sort(&d);
 	cmd_print_diags(&d, stderr);
 	diag_clear(&d);
 	if (!s) {

@@ -26,9 +26,9 @@
 #include "geom.h"
 #include "image.h"
 #include "pixels.h"
-#include "protocol.h"
-#include "rig.h"
-#include "stimlist.h"
+#include "protocol_file.h"
+#include "rig_file.h"
+#include "stimlist_file.h"
 
 /* Defaults, documented in README ("stimuli"). */
 #define DEFAULT_SIZE_DEG 6.0      /* stimulus size assumed for the up-scaling check */

@@ -13,7 +13,7 @@
 #include "dclock.h"
 #include "display.h"
 #include "frames.h"
-#include "rig.h"
+#include "rig_file.h"
 
 /* A bar of '#' for COUNT out of TOP, at most 50 wide, in BAR (64 bytes). */
 static const char *hist_bar(char *bar, size_t count, size_t top)
@@ -31,6 +31,60 @@ const struct opts_row cmd_timing_opts[] = {
 	[O_HEADLESS] = {"headless", NULL, "no display: measure the virtual clock (a self-test)"},
 	OPTS_END,
 };
+
+/* The frame-interval histogram of the N flips FLIPS: 0.25 ms bins around the median M, everything
+ * else in the end bins. */
+static void print_histogram(const int64_t *flips, size_t n, const struct frames_measure *m)
+{
+	double *iv = xmalloc(n * sizeof *iv);
+	for (size_t i = 1; i < n; i++)
+		iv[i - 1] = (double)(flips[i] - flips[i - 1]) / 1e6;
+	size_t ni = n - 1;
+	enum { NB = 24 };
+	double lo = m->median_ms - 0.25 * NB / 2;
+	size_t bins[NB] = {0}, under = 0, over = 0, top = 1;
+	for (size_t i = 0; i < ni; i++) {
+		double b = floor((iv[i] - lo) / 0.25);
+		if (b < 0) under++;
+		else if (b >= NB) over++;
+		else bins[(int)b]++;
+	}
+	free(iv);
+	for (int b = 0; b < NB; b++)
+		if (bins[b] > top) top = bins[b];
+	if (under > top) top = under;
+	if (over > top) top = over;
+	printf("\ninterval (ms)      count\n");
+	char bar[64];
+#define BAR(cnt) hist_bar(bar, (cnt), top)
+	if (under)
+		printf("      < %7.2f %6zu %s\n", lo, under, BAR(under));
+	for (int b = 0; b < NB; b++)
+		if (bins[b])
+			printf("%7.2f-%7.2f %6zu %s\n", lo + 0.25 * b, lo + 0.25 * (b + 1), bins[b], BAR(bins[b]));
+	if (over)
+		printf("      >=%7.2f %6zu %s\n", lo + 0.25 * NB, over, BAR(over));
+#undef BAR
+}
+
+/* Whether present waits for the vertical blank, from the N times INSIDE (ms) spent in each
+ * present and the measured rate; prints the verdict. */
+static bool present_blocks(double *inside, size_t n, const struct frames_measure *m,
+			   double nominal_hz)
+{
+	gsl_sort(inside, 1, n);
+	double in_med = gsl_stats_median_from_sorted_data(inside, 1, n);
+	double period_ms = 1000.0 / nominal_hz;
+	/* Present blocks when it waits for the vertical blank: with nothing else to do, a frame
+	 * then spends most of its period inside the call. Under half a period, and a rate far
+	 * above the nominal one, means it returns at once. */
+	bool blocks = in_med > 0.5 * period_ms || (m->rate_hz < 1.1 * nominal_hz &&
+						   m->rate_hz > 0.9 * nominal_hz);
+	printf("\npresent blocks: %s (median %.3f ms inside each present)\n",
+	       blocks ? "yes" : "NO - frame times are not locked to the display; check the "
+	       "driver's vsync setting", in_med);
+	return blocks;
+}
 
 int cmd_timing(int argc, char **argv)
 {
@@ -94,8 +148,7 @@ int cmd_timing(int argc, char **argv)
 	size_t n = (size_t)nframes;
 	int64_t *flips = malloc(n * sizeof *flips);
 	double *inside = malloc(n * sizeof *inside);
-	double *iv = malloc(n * sizeof *iv);
-	if (!flips || !inside || !iv) {
+	if (!flips || !inside) {
 		fprintf(stderr, "tachist: out of memory\n");
 		return EXIT_PROBLEMS;
 	}
@@ -129,55 +182,14 @@ int cmd_timing(int argc, char **argv)
 	printf("estimated rate: %.3f Hz (rig says %.3f Hz, %+.2f%%)%s\n", m.rate_hz, rig.refresh_hz,
 	       off, fabs(off) > 1 ? "  <- mismatch over 1%" : "");
 	printf("dropped frames: %zu (intervals over 1.5 nominal periods)\n", m.dropped);
-	/* Histogram: 0.25 ms bins around the median, everything else in the end bins. */
-	for (size_t i = 1; i < n; i++)
-		iv[i - 1] = (double)(flips[i] - flips[i - 1]) / 1e6;
-	size_t ni = n - 1;
-	enum { NB = 24 };
-	double lo = m.median_ms - 0.25 * NB / 2;
-	size_t bins[NB] = {0}, under = 0, over = 0, top = 1;
-	for (size_t i = 0; i < ni; i++) {
-		double b = floor((iv[i] - lo) / 0.25);
-		if (b < 0) under++;
-		else if (b >= NB) over++;
-		else bins[(int)b]++;
-	}
-	for (int b = 0; b < NB; b++)
-		if (bins[b] > top) top = bins[b];
-	if (under > top) top = under;
-	if (over > top) top = over;
-	printf("\ninterval (ms)      count\n");
-	char bar[64];
-#define BAR(cnt) hist_bar(bar, (cnt), top)
-	if (under)
-		printf("      < %7.2f %6zu %s\n", lo, under, BAR(under));
-	for (int b = 0; b < NB; b++)
-		if (bins[b])
-			printf("%7.2f-%7.2f %6zu %s\n", lo + 0.25 * b, lo + 0.25 * (b + 1), bins[b], BAR(bins[b]));
-	if (over)
-		printf("      >=%7.2f %6zu %s\n", lo + 0.25 * NB, over, BAR(over));
-#undef BAR
+	print_histogram(flips, n, &m);
 	/* Headless, the virtual clock stands in for the display and no present waits for anything:
 	 * the time spent inside it says nothing, so nothing about it is printed. */
-	if (!headless) {
-		gsl_sort(inside, 1, n);
-		double in_med = gsl_stats_median_from_sorted_data(inside, 1, n);
-		double period_ms = 1000.0 / rig.refresh_hz;
-		/* Present blocks when it waits for the vertical blank: with nothing else to do, a
-		 * frame then spends most of its period inside the call. Under half a period, and a
-		 * rate far above the nominal one, means it returns at once. */
-		bool blocks = in_med > 0.5 * period_ms || (m.rate_hz < 1.1 * rig.refresh_hz &&
-							   m.rate_hz > 0.9 * rig.refresh_hz);
-		printf("\npresent blocks: %s (median %.3f ms inside each present)\n",
-		       blocks ? "yes" : "NO - frame times are not locked to the display; check the "
-		       "driver's vsync setting", in_med);
-		if (!blocks)
-			code = EXIT_PROBLEMS;
-	}
+	if (!headless && !present_blocks(inside, n, &m, rig.refresh_hz))
+		code = EXIT_PROBLEMS;
 out:
 	free(flips);
 	free(inside);
-	free(iv);
 	dclock_destroy(c);
 	display_close(disp);
 	rig_clear(&rig);

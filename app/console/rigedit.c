@@ -15,7 +15,7 @@
 
 #include "diag.h"
 #include "geom.h"
-#include "rig.h"
+#include "rig_file.h"
 
 enum row { ROW_WCM, ROW_HCM, ROW_WPX, ROW_HPX, ROW_DIST, ROW_HZ, ROW_PATH, ROW_COUNT };
 

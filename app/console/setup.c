@@ -3,8 +3,8 @@
  *
  * Rows are fields (edited in place with their validation message under them) or choices (Left
  * and Right step through the values). The check runs in the console process whenever the
- * protocol, rig or seed changes: protocol_load, rig_load, stimlist_load and plan_build, every
- * problem as FILE:LINE. Opening the session hands a run_options to the presentation child
+ * protocol, rig or seed changes, through the loader `check` and `run` use (inputs.h: protocol,
+ * rig, list, every image, the plan), every problem as FILE:LINE. Opening the session hands a run_options to the presentation child
  * (presenter.c) and moves on to the blocks screen. With a resume ID the protocol, subject and seed
  * come from the stored session and are shown, not edited. */
 #include "console.h"
@@ -18,11 +18,8 @@
 #include "diag.h"
 #include "geom.h"
 #include "observer.h"
-#include "plan.h"
-#include "protocol.h"
-#include "rig.h"
+#include "inputs.h"
 #include "run.h"
-#include "stimlist.h"
 #include "store.h"
 
 enum row { ROW_PROTOCOL, ROW_SUBJECT, ROW_RIG, ROW_SEED, ROW_DISPLAY, ROW_OBSERVER, ROW_MODEL,
@@ -116,7 +113,8 @@ static void find_protocols(struct setup *s, const char *dir)
 		qsort(s->found, s->nfound, sizeof *s->found, cmp_str);
 }
 
-/* Validates protocol, rig and list and builds the plan, as `tachist check` does. */
+/* Validates protocol, rig, list and images and builds the plan through the loader `tachist check`
+ * and the session use, so the form shows the problems that would stop the session. */
 static void run_check(struct setup *s)
 {
 	diag_clear(&s->diags);
@@ -124,52 +122,46 @@ static void run_check(struct setup *s)
 	s->checked = true;
 	s->usable = false;
 	s->plan_line[0] = s->rig_line[0] = s->epoch_line[0] = s->geom_line[0] = '\0';
-	struct protocol p;
-	struct rig r;
-	struct stimlist l;
-	struct plan pl;
-	memset(&p, 0, sizeof p);
-	memset(&r, 0, sizeof r);
-	memset(&l, 0, sizeof l);
-	memset(&pl, 0, sizeof pl);
-	bool rig_ok = false;
-	if (s->f[ROW_RIG].len && rig_load(s->f[ROW_RIG].text, &r, &s->diags) == 0) {
-		rig_ok = true;
+	struct inputs_options io = {
+		.protocol_path = s->f[ROW_PROTOCOL].len ? s->f[ROW_PROTOCOL].text : NULL,
+		.rig_path = s->f[ROW_RIG].len ? s->f[ROW_RIG].text : NULL,
+		.seed = strtoull(s->f[ROW_SEED].text, NULL, 10),
+	};
+	struct inputs in;
+	memset(&in, 0, sizeof in);
+	int rc = io.protocol_path ? inputs_load(&io, &in, &s->diags) : -1;
+	const struct protocol *p = &in.proto;
+	const struct rig *r = &in.rig;
+	const struct plan *pl = &in.plan;
+	if (in.have_rig)
 		snprintf(s->rig_line, sizeof s->rig_line, "%dx%d px, %gx%g cm, %g cm away, %g Hz",
-			 r.width_px, r.height_px, r.width_cm, r.height_cm, r.distance_cm, r.refresh_hz);
-	}
-	bool proto_ok = s->f[ROW_PROTOCOL].len &&
-			protocol_load(s->f[ROW_PROTOCOL].text, &p, &s->diags) == 0;
-	bool list_ok = proto_ok && stimlist_load(p.stimuli, &p, &l, &s->diags) == 0;
-	unsigned long long seed = strtoull(s->f[ROW_SEED].text, NULL, 10);
-	if (proto_ok && rig_ok) {
+			 r->width_px, r->height_px, r->width_cm, r->height_cm, r->distance_cm,
+			 r->refresh_hz);
+	if (in.have_proto && in.have_rig) {
 		double deg_actual = 0;
-		int px = geom_deg_to_px(&r, p.size_deg, &deg_actual);
-		s->size_deg = p.size_deg;
+		int px = geom_deg_to_px(r, p->size_deg, &deg_actual);
+		s->size_deg = p->size_deg;
 		snprintf(s->geom_line, sizeof s->geom_line,
-			 "%.2f px/deg; stimulus %.2f deg = %d px (%.3f deg)", geom_px_per_deg(&r),
-			 p.size_deg, px, deg_actual);
+			 "%.2f px/deg; stimulus %.2f deg = %d px (%.3f deg)", geom_px_per_deg(r),
+			 p->size_deg, px, deg_actual);
 	}
-	if (proto_ok && list_ok && rig_ok &&
-	    plan_build(&p, &l, &r, seed, &pl, &s->diags) == 0) {
+	if (in.have_plan) {
 		snprintf(s->plan_line, sizeof s->plan_line,
 			 "%zu block%s, %zu trials, about %.0f min; %zu choices; list of %zu images",
-			 pl.nblocks, pl.nblocks == 1 ? "" : "s", pl.ntrials, pl.est_seconds / 60.0 + 0.5,
-			 p.nchoices, l.n);
+			 pl->nblocks, pl->nblocks == 1 ? "" : "s", pl->ntrials,
+			 pl->est_seconds / 60.0 + 0.5, p->nchoices, in.list.n);
 		snprintf(s->epoch_line, sizeof s->epoch_line,
 			 "stimulus %d frames (%.1f ms), fixation %d (%.0f ms), mask %d (%.0f ms)",
-			 pl.epoch_frames[EPOCH_STIMULUS], pl.epoch_actual_ms[EPOCH_STIMULUS],
-			 pl.epoch_frames[EPOCH_FIXATION], pl.epoch_actual_ms[EPOCH_FIXATION],
-			 pl.epoch_frames[EPOCH_MASK], pl.epoch_actual_ms[EPOCH_MASK]);
-		s->usable = diag_count(&s->diags, DIAG_ERROR) == 0;
+			 pl->epoch_frames[EPOCH_STIMULUS], pl->epoch_actual_ms[EPOCH_STIMULUS],
+			 pl->epoch_frames[EPOCH_FIXATION], pl->epoch_actual_ms[EPOCH_FIXATION],
+			 pl->epoch_frames[EPOCH_MASK], pl->epoch_actual_ms[EPOCH_MASK]);
 	}
+	s->usable = rc == 0;
+	diag_sort(&s->diags);
 	s->nerrors = (int)diag_count(&s->diags, DIAG_ERROR);
 	s->nwarnings = (int)diag_count(&s->diags, DIAG_WARNING);
 	s->scroll = 0;
-	plan_clear(&pl);
-	stimlist_clear(&l);
-	protocol_clear(&p);
-	rig_clear(&r);
+	inputs_clear(&in);
 }
 
 static void draw_choice(struct console *c, int y, int x, bool focused, const char *text)

@@ -128,3 +128,40 @@ void diag_format(const struct diag *g, char *buf, size_t len)
 	else
 		snprintf(buf, len, "%s: %s", level_word(g->level), g->msg);
 }
+
+struct ranked {
+	struct diag g;
+	size_t rank, index;
+};
+
+static int cmp_ranked(const void *a, const void *b)
+{
+	const struct ranked *x = a, *y = b;
+	if (x->rank != y->rank)
+		return x->rank < y->rank ? -1 : 1;
+	if (x->g.line != y->g.line)
+		return x->g.line < y->g.line ? -1 : 1;
+	return x->index < y->index ? -1 : x->index > y->index;
+}
+
+void diag_sort(struct diag_list *d)
+{
+	if (d->n < 2)
+		return;
+	struct ranked *v = xmalloc(d->n * sizeof *v);
+	for (size_t i = 0; i < d->n; i++) {
+		v[i].g = d->v[i];
+		v[i].index = i;
+		v[i].rank = i;
+		for (size_t k = 0; k < i; k++)
+			if ((!d->v[k].file && !d->v[i].file) ||
+			    (d->v[k].file && d->v[i].file && !strcmp(d->v[k].file, d->v[i].file))) {
+				v[i].rank = v[k].rank;
+				break;
+			}
+	}
+	qsort(v, d->n, sizeof *v, cmp_ranked);
+	for (size_t i = 0; i < d->n; i++)
+		d->v[i] = v[i].g;
+	free(v);
+}

@@ -13,7 +13,7 @@
 #include <string.h>
 
 #include "diag.h"
-#include "protocol.h"
+#include "protocol_file.h"
 #include "store.h"
 
 struct pending {

@@ -23,7 +23,7 @@
 
 #include "diag.h"
 #include "export.h"
-#include "rig.h"
+#include "rig_file.h"
 #include "store.h"
 #include "version.h"
 

@@ -10,7 +10,7 @@
  * Adding a section kind: write a `const struct protocol_section` in its own file (using the
  * protocol_ctx_* and protocol_value_* helpers), declare it in its header, and add one row to
  * `sections[]`. A block's `adaptive = NAME` is resolved through the kinds' defines() hooks. */
-#include "protocol.h"
+#include "protocol_file.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -877,12 +877,4 @@ void protocol_clear(struct protocol *p)
 	}
 	free(p->blocks);
 	memset(p, 0, sizeof *p);
-}
-
-int protocol_choice_index(const struct protocol *p, const char *category)
-{
-	for (size_t i = 0; i < p->nchoices; i++)
-		if (!strcmp(p->choices[i].category, category))
-			return (int)i;
-	return -1;
 }

@@ -221,25 +221,12 @@ static void not_for_rule(struct protocol_ctx *c, int key_index, const char *rule
 				     adaptive_keys[key_index].name, rule);
 }
 
-static void adaptive_close(struct protocol_ctx *c, int header)
+/* What the section's rule needs, and the keys it ignores. */
+static void adaptive_rule_keys(struct protocol_ctx *c, struct adapt_spec *s, int header)
 {
-	struct adapt_spec *s = current(c);
 	struct adapt_params *p = &s->base;
-	s->has_floor = protocol_ctx_key_line(c, AK_FLOOR) != 0;
-	s->has_ceiling = protocol_ctx_key_line(c, AK_CEILING) != 0;
-	if (!s->has_floor)
-		p->floor = NAN;
-	if (!s->has_ceiling)
-		p->ceiling = NAN;
-	if ((int)p->rule < 0) {
-		/* rule missing or misspelt: reported already; the rest depends on it */
-		p->rule = ADAPT_UPDOWN;
-		return;
-	}
 	const char *rule = rule_words[p->rule];
 	bool quest = p->rule == ADAPT_QUEST;
-
-	/* What each rule needs, and what it ignores. */
 	bool both = protocol_ctx_key_line(c, AK_START) && protocol_ctx_key_line(c, AK_PRIOR_MEAN);
 	if (both) {
 		/* reported when the second was read */
@@ -301,8 +288,13 @@ static void adaptive_close(struct protocol_ctx *c, int header)
 		protocol_ctx_warning(c, protocol_ctx_key_line(c, AK_PERCENTILE),
 				     "percentile applies only with test_at = percentile and is "
 				     "ignored");
+}
 
-	/* Levels: above 0 on a log axis, floor below ceiling, starts inside. */
+/* Levels: above 0 on a log axis, floor below ceiling, starts inside, halvings before the end. */
+static void adaptive_levels(struct protocol_ctx *c, struct adapt_spec *s)
+{
+	struct adapt_params *p = &s->base;
+	bool quest = p->rule == ADAPT_QUEST;
 	const char *what = quest ? "prior_mean" : "start";
 	if (p->axis == ADAPT_AXIS_LOG) {
 		if (s->has_floor && !(p->floor > 0))
@@ -338,6 +330,25 @@ static void adaptive_close(struct protocol_ctx *c, int header)
 					     p->halve_after[i], p->stop_reversals);
 			break;
 		}
+}
+
+static void adaptive_close(struct protocol_ctx *c, int header)
+{
+	struct adapt_spec *s = current(c);
+	struct adapt_params *p = &s->base;
+	s->has_floor = protocol_ctx_key_line(c, AK_FLOOR) != 0;
+	s->has_ceiling = protocol_ctx_key_line(c, AK_CEILING) != 0;
+	if (!s->has_floor)
+		p->floor = NAN;
+	if (!s->has_ceiling)
+		p->ceiling = NAN;
+	if ((int)p->rule < 0) {
+		/* rule missing or misspelt: reported already; the rest depends on it */
+		p->rule = ADAPT_UPDOWN;
+		return;
+	}
+	adaptive_rule_keys(c, s, header);
+	adaptive_levels(c, s);
 }
 
 static int adaptive_defines(const struct protocol *p, const char *name)

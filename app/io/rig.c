@@ -6,7 +6,7 @@
  *
  * A table of keys (type, range, place in struct rig) drives the parse; every problem becomes a
  * FILE:LINE diagnostic and parsing goes on. Documented in README.md ("Rig profile"). */
-#include "rig.h"
+#include "rig_file.h"
 
 #include <ctype.h>
 #include <errno.h>

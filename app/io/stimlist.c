@@ -6,7 +6,7 @@
  * growable array; the first row is the header. Every problem is a FILE:LINE diagnostic and
  * parsing goes on (except after broken quoting, which libcsv cannot resume from). Called by
  * `check`, the run layer and the stimulus-set tools. */
-#include "stimlist.h"
+#include "stimlist_file.h"
 
 #include <ctype.h>
 #include <csv.h>
@@ -409,25 +409,4 @@ void stimlist_clear(struct stimlist *l)
 	free(l->label_names);
 	free(l->path);
 	memset(l, 0, sizeof *l);
-}
-
-const char *stimlist_value(const struct stimlist *l, const struct stim *s, const char *column,
-			   char *buf, size_t len)
-{
-	if (!strcmp(column, "image"))
-		return s->image;
-	if (!strcmp(column, "category"))
-		return s->category;
-	if (!strcmp(column, "level")) {
-		if (!l->has_level_column)
-			return NULL;
-		snprintf(buf, len, "%.17g", s->level);
-		return buf;
-	}
-	if (!strcmp(column, "source"))
-		return l->has_source_column ? (s->source ? s->source : "") : NULL;
-	for (size_t i = 0; i < l->nlabels; i++)
-		if (!strcmp(l->label_names[i], column))
-			return s->labels[i];
-	return NULL;
 }

@@ -7,7 +7,6 @@
  * whose plan_trial.staircase >= 0) and run_adaptive_update (after it is stored). */
 #include "run_private.h"
 
-#include <errno.h>
 #include <fcntl.h>
 #include <math.h>
 #include <signal.h>
@@ -23,14 +22,15 @@
 #include "frames.h"
 #include "geom.h"
 #include "image.h"
+#include "inputs.h"
 #include "observer.h"
 #include "plan.h"
 #include "preload.h"
-#include "protocol.h"
+#include "protocol_file.h"
 #include "responder.h"
-#include "rig.h"
+#include "rig_file.h"
 #include "sha256.h"
-#include "stimlist.h"
+#include "stimlist_file.h"
 #include "store.h"
 #include "trialloop.h"
 #include "version.h"
@@ -105,53 +105,33 @@ static void shot_hook(void *ctx, enum epoch e, int frame, bool stim)
 
 /* ---- open ---- */
 
+/* Loads protocol, rig, list and images and builds the plan through the one loader `check` uses,
+ * so a session refuses to begin on anything check would refuse, with its messages in D. */
 static int load_inputs(struct run_session *s, const struct run_options *o, const char *rig_text,
 		       uint64_t seed, struct diag_list *d, char **err)
 {
-	if (protocol_load(o->protocol_path, &s->proto, d)) {
-		*err = xasprintf("%s has problems; run `tachist check %s` for the list", o->protocol_path,
+	struct inputs_options io = {.protocol_path = o->protocol_path, .rig_path = o->rig_path,
+				    .rig_text = rig_text, .seed = seed};
+	struct inputs in;
+	if (inputs_load(&io, &in, d)) {
+		inputs_clear(&in);
+		*err = xasprintf("nothing was started: `tachist check %s` finds the same problems",
 				 o->protocol_path);
 		return -1;
 	}
-	s->have_proto = true;
-	int rc = rig_text ? rig_parse(o->rig_path ? o->rig_path : "(stored rig)", rig_text, &s->rig, d)
-			  : rig_load(o->rig_path, &s->rig, d);
-	if (rc) {
-		*err = xasprintf("the rig profile has problems");
-		return -1;
-	}
-	s->have_rig = true;
-	if (stimlist_load(s->proto.stimuli, &s->proto, &s->list, d)) {
-		*err = xasprintf("the stimulus list %s has problems", s->proto.stimuli);
-		return -1;
-	}
-	s->have_list = true;
-	if (plan_build(&s->proto, &s->list, &s->rig, seed, &s->plan, d)) {
-		*err = xasprintf("no trial plan can be built from %s", o->protocol_path);
-		return -1;
-	}
-	s->have_plan = true;
-	/* Every image the plan uses must be readable now; one that goes missing later stops the
-	 * block when its turn comes. */
-	size_t missing = 0;
-	for (size_t i = 0; i < s->plan.ntrials; i++) {
-		int k = s->plan.trials[i].stim;
-		if (k < 0)
-			continue;
-		const struct stim *st = &s->list.items[k];
-		if (access(st->path, R_OK) && missing++ < 20)
-			diag_add(d, DIAG_ERROR, s->list.path, st->line, "image %s cannot be read (%s)",
-				 st->image, strerror(errno));
-	}
-	if (missing) {
-		*err = xasprintf("%zu planned image%s cannot be read", missing, missing == 1 ? "" : "s");
-		return -1;
-	}
+	/* The session takes over what the loader built. */
+	s->proto = in.proto;
+	s->rig = in.rig;
+	s->list = in.list;
+	s->plan = in.plan;
+	s->have_proto = s->have_rig = s->have_list = s->have_plan = true;
 	return 0;
 }
 
-static int open_presenter(struct run_session *s, const struct run_options *o, struct diag_list *d,
-			  char **err)
+/* The observer's window: refused when there is no real display (unless headless) or when it is
+ * smaller than the stimulus; a warning when its size differs from the rig's. */
+static int open_display(struct run_session *s, const struct run_options *o, struct diag_list *d,
+			char **err)
 {
 	char e[512];
 	struct display_opts dopt = {
@@ -184,6 +164,13 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		diag_add(d, DIAG_WARNING, s->rig.path, 0, "the display is %d×%d px but the rig says "
 			 "%d×%d px: sizes in degrees are only right when the rig matches the display",
 			 sw, sh, s->rig.width_px, s->rig.height_px);
+	return 0;
+}
+
+/* The display clock: virtual (headless, with the injected faults) or locked to vsync. */
+static int open_clock(struct run_session *s, const struct run_options *o, struct diag_list *d,
+		      char **err)
+{
 	if (o->headless) {
 		struct dclock_virtual_opts vo = {
 			.hz = s->rig.refresh_hz, .drop_rate = o->inject_drops, .drop_frames = 1,
@@ -201,6 +188,13 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 				 "times are not locked to the display", display_driver(s->disp));
 		s->clock = dclock_vsync_new(display_renderer(s->disp), s->rig.refresh_hz);
 	}
+	return 0;
+}
+
+/* The responder: the keyboard (the protocol's keys) or the model observer O->observer names. */
+static int open_responder(struct run_session *s, const struct run_options *o, char **err)
+{
+	char e[512];
 	if (!o->observer || !strcmp(o->observer, "keyboard")) {
 		const char *keys[PROTOCOL_MAX_CHOICES];
 		for (size_t i = 0; i < s->proto.nchoices; i++)
@@ -220,7 +214,13 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		s->resp = responder_model_new(&spec);
 		observer_format(&spec, s->observer_text, sizeof s->observer_text);
 	}
-	s->paced = s->keyboard && !o->no_observer_screens;
+	return 0;
+}
+
+/* The mask texture the protocol asks for (noise, or its image), if any. */
+static int make_mask(struct run_session *s, char **err)
+{
+	char e[512] = "";
 	if (s->proto.mask == MASK_NOISE) {
 		s->mask = display_texture_noise(s->disp, s->plan.stim_px, s->plan.stim_px,
 						s->plan.stim_px / 32 + 1, s->plan.seed, e, sizeof e);
@@ -238,6 +238,18 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		*err = xasprintf("the mask cannot be made: %s", e);
 		return -1;
 	}
+	return 0;
+}
+
+/* The presenter's parts: display, clock, responder, mask, trial loop and preloader. */
+static int open_presenter(struct run_session *s, const struct run_options *o, struct diag_list *d,
+			  char **err)
+{
+	if (open_display(s, o, d, err) || open_clock(s, o, d, err) || open_responder(s, o, err))
+		return -1;
+	s->paced = s->keyboard && !o->no_observer_screens;
+	if (make_mask(s, err))
+		return -1;
 	struct trialloop_config tc = {
 		.disp = s->disp, .clock = s->clock, .resp = s->resp,
 		.period_ns = s->clock->period_ns, .stim_px = s->plan.stim_px,
@@ -342,6 +354,94 @@ void run_pending_done(struct run_session *s, int trial)
 		}
 }
 
+/* Resume: the stored session O->resume_id, refused when complete or still running elsewhere, and
+ * its inputs (with the stored rig and seed), refused when the protocol or the list changed. */
+static int resume_load(struct run_session *s, const struct run_options *o, struct diag_list *d,
+		       char **err)
+{
+	if (store_session_get(s->store, o->resume_id, &s->ss, err))
+		return -1;
+	if (s->ss.status == STORE_COMPLETE) {
+		*err = xasprintf("session %s is already complete", s->ss.id);
+		return -1;
+	}
+	if (s->ss.status == STORE_RUNNING) {
+		/* Recovery left it running: its process is alive here or it runs elsewhere. */
+		*err = xasprintf("session %.8s is still running in another process (here or on "
+				 "another host); resume it once that run has ended", s->ss.id);
+		return -1;
+	}
+	if (load_inputs(s, o, s->ss.rig_text, s->ss.seed, d, err))
+		return -1;
+	char hex[65];
+	sha256_hex(s->proto.text, strlen(s->proto.text), hex);
+	if (strcmp(hex, s->ss.protocol_sha256)) {
+		*err = xasprintf("the protocol %s changed since session %.8s began; resume refused",
+				 o->protocol_path, s->ss.id);
+		return -1;
+	}
+	if (strcmp(s->list.sha256, s->ss.stimuli_sha256)) {
+		*err = xasprintf("the stimulus list %s changed since session %.8s began; resume "
+				 "refused", s->list.path, s->ss.id);
+		return -1;
+	}
+	return 0;
+}
+
+/* Resume: what is stored and owed, then the session is running again, owned by this process. */
+static int resume_begin(struct run_session *s, const char *mode, struct diag_list *d, char **err)
+{
+	if (mark_stored(s, err) || run_adaptive_mark_finished(s, err))
+		return -1;
+	if (strcmp(s->ss.timing_mode ? s->ss.timing_mode : "", mode))
+		diag_add(d, DIAG_WARNING, NULL, 0, "session %.8s began with timing mode %s and "
+			 "goes on with %s", s->ss.id, s->ss.timing_mode, mode);
+	char *detail = xasprintf("resumed by tachist %s, %s", TACHIST_VERSION, s->observer_text);
+	int rc = store_event(s->store, s->ss.id, "resume", detail, err);
+	free(detail);
+	if (rc)
+		return -1;
+	char *was = xasprintf("running again (was %s), pid %ld",
+			      store_status_name(s->ss.status), (long)getpid());
+	rc = store_session_own(s->store, s->ss.id, (long)getpid(), NULL, err);
+	if (!rc)
+		rc = store_event(s->store, s->ss.id, "status", was, err);
+	free(was);
+	if (rc)
+		return -1;
+	s->ss.status = STORE_RUNNING;
+	return 0;
+}
+
+/* A new session: its row describes the inputs, subject, seed, timing mode and observer. */
+static int session_begin(struct run_session *s, const struct run_options *o, const char *mode,
+			 char **err)
+{
+	store_session_describe(&s->ss, &s->proto, &s->list, &s->rig);
+	free(s->ss.subject);
+	s->ss.subject = xstrdup(o->subject);
+	sha256_hex(s->proto.text, strlen(s->proto.text), s->ss.protocol_sha256);
+	s->ss.seed = s->plan.seed;
+	free(s->ss.timing_mode);
+	s->ss.timing_mode = xstrdup(mode);
+	free(s->ss.observer);
+	s->ss.observer = xstrdup(s->observer_text);
+	s->ss.planned_trials = (int)s->plan.ntrials;
+	return store_session_begin(s->store, &s->ss, err);
+}
+
+/* SIGINT and SIGTERM only set the stop flag while the session is open. */
+static void install_handlers(struct run_session *s)
+{
+	struct sigaction sa;
+	memset(&sa, 0, sizeof sa);
+	sa.sa_handler = on_signal;
+	sigemptyset(&sa.sa_mask);
+	sigaction(SIGINT, &sa, &s->old_int);
+	sigaction(SIGTERM, &sa, &s->old_term);
+	s->handlers = true;
+}
+
 struct run_session *run_open(const struct run_options *o, struct diag_list *d, char **err)
 {
 	*err = NULL;
@@ -358,32 +458,8 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 	if (store_recover(s->store, &nrec, &rerr))
 		free(rerr);   /* a read-only database fails later, at the session's first write */
 	if (o->resume_id) {
-		if (store_session_get(s->store, o->resume_id, &s->ss, err))
+		if (resume_load(s, o, d, err))
 			goto fail;
-		if (s->ss.status == STORE_COMPLETE) {
-			*err = xasprintf("session %s is already complete", s->ss.id);
-			goto fail;
-		}
-		if (s->ss.status == STORE_RUNNING) {
-			/* Recovery left it running: its process is alive here or it runs elsewhere. */
-			*err = xasprintf("session %.8s is still running in another process (here or on "
-					 "another host); resume it once that run has ended", s->ss.id);
-			goto fail;
-		}
-		if (load_inputs(s, o, s->ss.rig_text, s->ss.seed, d, err))
-			goto fail;
-		char hex[65];
-		sha256_hex(s->proto.text, strlen(s->proto.text), hex);
-		if (strcmp(hex, s->ss.protocol_sha256)) {
-			*err = xasprintf("the protocol %s changed since session %.8s began; resume refused",
-					 o->protocol_path, s->ss.id);
-			goto fail;
-		}
-		if (strcmp(s->list.sha256, s->ss.stimuli_sha256)) {
-			*err = xasprintf("the stimulus list %s changed since session %.8s began; resume "
-					 "refused", s->list.path, s->ss.id);
-			goto fail;
-		}
 	} else {
 		uint64_t seed = o->has_seed ? o->seed : fresh_seed();
 		if (!o->rig_path) {
@@ -402,51 +478,10 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 	if (open_presenter(s, o, d, err))
 		goto fail;
 	const char *mode = o->headless ? "simulated" : "vsync";
-	if (o->resume_id) {
-		if (mark_stored(s, err) || run_adaptive_mark_finished(s, err))
-			goto fail;
-		if (strcmp(s->ss.timing_mode ? s->ss.timing_mode : "", mode))
-			diag_add(d, DIAG_WARNING, NULL, 0, "session %.8s began with timing mode %s and "
-				 "goes on with %s", s->ss.id, s->ss.timing_mode, mode);
-		char *detail = xasprintf("resumed by tachist %s, %s", TACHIST_VERSION, s->observer_text);
-		if (store_event(s->store, s->ss.id, "resume", detail, err)) {
-			free(detail);
-			goto fail;
-		}
-		free(detail);
-		/* From here the session is running again, owned by this process. */
-		char *was = xasprintf("running again (was %s), pid %ld",
-				      store_status_name(s->ss.status), (long)getpid());
-		int rc = store_session_own(s->store, s->ss.id, (long)getpid(), NULL, err);
-		if (!rc)
-			rc = store_event(s->store, s->ss.id, "status", was, err);
-		free(was);
-		if (rc)
-			goto fail;
-		s->ss.status = STORE_RUNNING;
-	} else {
-		store_session_describe(&s->ss, &s->proto, &s->list, &s->rig);
-		free(s->ss.subject);
-		s->ss.subject = xstrdup(o->subject);
-		sha256_hex(s->proto.text, strlen(s->proto.text), s->ss.protocol_sha256);
-		s->ss.seed = s->plan.seed;
-		free(s->ss.timing_mode);
-		s->ss.timing_mode = xstrdup(mode);
-		free(s->ss.observer);
-		s->ss.observer = xstrdup(s->observer_text);
-		s->ss.planned_trials = (int)s->plan.ntrials;
-		if (store_session_begin(s->store, &s->ss, err))
-			goto fail;
-	}
-	if (!o->no_signal_handlers) {
-		struct sigaction sa;
-		memset(&sa, 0, sizeof sa);
-		sa.sa_handler = on_signal;
-		sigemptyset(&sa.sa_mask);
-		sigaction(SIGINT, &sa, &s->old_int);
-		sigaction(SIGTERM, &sa, &s->old_term);
-		s->handlers = true;
-	}
+	if (o->resume_id ? resume_begin(s, mode, d, err) : session_begin(s, o, mode, err))
+		goto fail;
+	if (!o->no_signal_handlers)
+		install_handlers(s);
 	run_stop_flag = 0;
 	s->live = true;
 	return s;

@@ -5,8 +5,8 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "protocol.h"
-#include "rig.h"
+#include "protocol_file.h"
+#include "rig_file.h"
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 

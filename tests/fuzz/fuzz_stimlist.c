@@ -6,9 +6,9 @@
 #include <string.h>
 
 #include "plan.h"
-#include "protocol.h"
-#include "rig.h"
-#include "stimlist.h"
+#include "protocol_file.h"
+#include "rig_file.h"
+#include "stimlist_file.h"
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 
