@@ -437,6 +437,13 @@ static int precheck(const struct model *md, const struct fit_opts *o, struct fit
 			return -1;
 		}
 	}
+	if (md->n <= md->npar) {
+		snprintf(r->reason, sizeof r->reason,
+			 "%zu levels cannot support a fit of %zu free parameters (%s): a fit needs "
+			 "more levels than parameters, or a fixed lapse rate", md->n, md->npar,
+			 md->npar == 3 ? "position, slope and lapse rate" : "position and slope");
+		return -1;
+	}
 	return 0;
 }
 
