@@ -157,11 +157,13 @@ static void fit_testGroupedEqualsTrials(void **state)
 	free(pts);
 }
 
-/* Two levels and two free parameters reproduce the data exactly: deviance 0 (saturated). */
-static void fit_testSaturatedDeviance(void **state)
+/* Two levels and two free parameters would reproduce the data exactly (deviance 0 on 0 degrees of
+ * freedom): no more points than free parameters is no fit, and the reason says so. With the lapse
+ * free, three levels are not enough either. */
+static void fit_testNoMorePointsThanParameters(void **state)
 {
 	(void)state;
-	struct fit_point pts[] = {{1.0, 50, 30}, {2.0, 50, 45}};
+	struct fit_point pts[] = {{1.0, 50, 30}, {2.0, 50, 45}, {3.0, 50, 48}};
 	struct fit_opts o;
 	fit_opts_default(&o, 2);
 	o.shape = PSYFN_NORMAL;
@@ -169,10 +171,15 @@ static void fit_testSaturatedDeviance(void **state)
 	o.lapse = 0;
 	o.nboot = 0;
 	struct fit_result r;
-	assert_int_equal(fit_run(pts, 2, &o, &r), 0);
-	assert_float_equal(r.deviance, 0.0, 1e-6);
-	assert_float_equal(psyfn_eval(&r.f, 1.0), 0.6, 1e-5);
-	assert_float_equal(psyfn_eval(&r.f, 2.0), 0.9, 1e-5);
+	assert_int_equal(fit_run(pts, 2, &o, &r), -1);
+	assert_int_equal(r.status, FIT_UNSUPPORTED);
+	assert_non_null(strstr(r.reason, "2 levels cannot support a fit of 2 free parameters"));
+	assert_true(isnan(r.deviance));
+	assert_int_equal(fit_run(pts, 3, &o, &r), 0);
+	assert_int_equal(r.dof, 1);
+	o.lapse_free = true;
+	assert_int_equal(fit_run(pts, 3, &o, &r), -1);
+	assert_non_null(strstr(r.reason, "3 levels cannot support a fit of 3 free parameters"));
 }
 
 static void expect_unsupported(const struct fit_point *p, size_t n, enum psyfn_shape s, int m,
@@ -303,7 +310,7 @@ int main(void)
 		cmocka_unit_test(fit_testFallingData),
 		cmocka_unit_test(fit_testSteepSlopeBounded),
 		cmocka_unit_test(fit_testGroupedEqualsTrials),
-		cmocka_unit_test(fit_testSaturatedDeviance),
+		cmocka_unit_test(fit_testNoMorePointsThanParameters),
 		cmocka_unit_test(fit_testUnsupportedData),
 		cmocka_unit_test(fit_testBootstrapSeeded),
 		cmocka_unit_test(fit_testBootstrapCoverage),

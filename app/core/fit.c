@@ -437,13 +437,46 @@ static int precheck(const struct model *md, const struct fit_opts *o, struct fit
 			return -1;
 		}
 	}
+	if (md->n <= md->npar) {
+		snprintf(r->reason, sizeof r->reason,
+			 "%zu levels cannot support a fit of %zu free parameters (%s): a fit needs "
+			 "more levels than parameters, or a fixed lapse rate", md->n, md->npar,
+			 md->npar == 3 ? "position, slope and lapse rate" : "position and slope");
+		return -1;
+	}
 	return 0;
 }
 
-/* Grid of starting points, then Nelder–Mead from the best of them, a restart, and a gradient
- * polish. The binomial likelihood of these models is close to unimodal in (α, β) for a given λ,
- * so a coarse grid (9 positions × 5 slopes × 2 lapse rates) finds the right basin at the cost of
- * 90 likelihood evaluations. Returns true on convergence with the best θ in TH. */
+/* Nelder–Mead from TH, a restart, and a gradient polish; TH and *VAL get the result. Returns true
+ * on convergence. */
+static bool descend(const struct model *md, double *th, double *val)
+{
+	double v, best;
+	nm_search(md, th, 4000, 1e-6, &v);
+	best = v;
+	/* Restart from the best point with a fresh simplex: Nelder–Mead can stall on a ridge. */
+	bool ok = nm_search(md, th, 4000, 1e-6, &v);
+	if (v <= best)
+		best = v;
+	/* Polish with the gradient: the simplex stops where function values stop resolving. A simplex
+	 * that reached the optimum but keeps a size just over the tolerance (values equal to the last
+	 * digit, so it no longer contracts) still converges here: BFGS's test is the gradient. */
+	double t[3];
+	memcpy(t, th, sizeof t);
+	if (bfgs_search(md, t, &v) && v <= best) {
+		memcpy(th, t, sizeof t);
+		best = v;
+		ok = true;
+	}
+	*val = best;
+	return ok;
+}
+
+/* Grid of starting points, then a descent (see descend) from the best three of them. The binomial
+ * likelihood of these models is close to unimodal in (α, β) for a given λ, so a coarse grid
+ * (9 positions × 5 slopes × 2 lapse rates, 90 likelihood evaluations) finds the right basin.
+ * Returns true on convergence with the best converged θ in TH (the best θ seen when none
+ * converged). */
 static bool ml_search(const struct model *md, double *th, double *best_val)
 {
 	double lo, hi;
@@ -461,7 +494,11 @@ static bool ml_search(const struct model *md, double *th, double *best_val)
 	static const double bw_weibull[5] = {0.5, 1.0, 2.0, 4.0, 8.0};
 	static const double bw_frac[5] = {0.02, 0.05, 0.1, 0.2, 0.5};
 	static const double bl[2] = {0.01, 0.04};
-	*best_val = INFINITY;
+	/* The best NSTART grid points, best first. */
+	enum { NSTART = 3 };
+	double start[NSTART][3], sval[NSTART];
+	for (int i = 0; i < NSTART; i++)
+		sval[i] = INFINITY;
 	int nl = md->lapse_free ? 2 : 1;
 	for (int a = 0; a < 9; a++)
 		for (int b = 0; b < 5; b++)
@@ -471,26 +508,84 @@ static bool ml_search(const struct model *md, double *th, double *best_val)
 									  : log(bw_frac[b] * r),
 					       md->lapse_free ? lapse_theta(md, bl[c]) : 0};
 				double v = nll(md, t, NULL);
-				if (v < *best_val) {
-					*best_val = v;
-					memcpy(th, t, sizeof t);
+				int at = NSTART;
+				while (at > 0 && v < sval[at - 1])
+					at--;
+				if (at == NSTART)
+					continue;
+				for (int i = NSTART - 1; i > at; i--) {
+					sval[i] = sval[i - 1];
+					memcpy(start[i], start[i - 1], sizeof start[i]);
 				}
+				sval[at] = v;
+				memcpy(start[at], t, sizeof t);
 			}
-	double v;
-	nm_search(md, th, 4000, 1e-6, &v);
-	*best_val = v;
-	/* Restart from the best point with a fresh simplex: Nelder–Mead can stall on a ridge. */
-	bool ok = nm_search(md, th, 4000, 1e-6, &v);
-	if (v <= *best_val)
-		*best_val = v;
-	/* Polish with the gradient: the simplex stops where function values stop resolving. */
-	double t[3];
-	memcpy(t, th, sizeof t);
-	if (ok && bfgs_search(md, t, &v) && v <= *best_val) {
-		memcpy(th, t, sizeof t);
-		*best_val = v;
+	/* Descend from each: the likelihood can have a second, poorer optimum (typically a steep
+	 * function on the steepness bound next to a shallower one), and the best grid point does not
+	 * always lie in the better basin. */
+	bool ok = false;
+	*best_val = INFINITY;
+	for (int i = 0; i < NSTART && isfinite(sval[i]); i++) {
+		double t[3], v;
+		bool c = descend(md, memcpy(t, start[i], sizeof t), &v);
+		if ((c && (!ok || v < *best_val)) || (!ok && !c && v < *best_val)) {
+			memcpy(th, t, sizeof t);
+			*best_val = v;
+			ok = ok || c;
+		}
 	}
 	return ok;
+}
+
+/* d(−log-likelihood)/dλ at θ (θ0, θ1 of MD; λ = MD->lapse, MD's lapse fixed). */
+static double lapse_slope(const struct model *md, const double *th)
+{
+	double s = 1 - md->gamma - md->lapse, sum = 0;
+	for (size_t i = 0; i < md->n; i++) {
+		double d0, d1;
+		double F = core(md, i, th, &d0, &d1);
+		double p = fmin(1 - P_EPS, fmax(P_EPS, md->gamma + s * F));
+		double k = (double)md->k[i], nk = (double)(md->nt[i] - md->k[i]);
+		sum += (k / p - nk / (1 - p)) * F;
+	}
+	return sum;
+}
+
+/* λ free: the best λ may lie on a bound (0 or λmax), where the free search can wander along a flat
+ * valley without meeting its convergence test. So the model is also fitted with λ fixed at each
+ * bound; a bound fit is a constrained optimum when the likelihood would fall on moving λ inside
+ * (Karush–Kuhn–Tucker: d(−ℓ)/dλ ≥ 0 at 0, ≤ 0 at λmax, within a small tolerance). The best
+ * likelihood among the converged candidates wins, its θ expressed in the free model's terms.
+ * CONV says whether the free search converged (TH, *VAL hold its result); returns whether any
+ * candidate did. */
+static bool lapse_bound_search(const struct model *md, double *th, double *val, bool conv)
+{
+	double ntot = 0;
+	for (size_t i = 0; i < md->n; i++)
+		ntot += (double)md->nt[i];
+	const double bounds[2] = {0.0, md->lapse_max};
+	for (int b = 0; b < 2; b++) {
+		struct model mb = *md;
+		mb.lapse_free = false;
+		mb.lapse = bounds[b];
+		mb.npar = 2;
+		double t[3] = {0, 0, 0}, v;
+		if (!ml_search(&mb, t, &v))
+			continue;
+		t[1] = lnb(&mb, t[1]);
+		v = nll(&mb, t, NULL);
+		double g = lapse_slope(&mb, t), tol = 1e-6 * (1 + ntot);
+		if (b == 0 ? g < -tol : g > tol)
+			continue;   /* the likelihood rises inside: not an optimum of the free model */
+		if (conv && !(v < *val))
+			continue;
+		th[0] = t[0];
+		th[1] = t[1];
+		th[2] = b == 0 ? -M_PI / 2 : M_PI / 2;
+		*val = v;
+		conv = true;
+	}
+	return conv;
 }
 
 /* Data the fitted function cannot speak for: flat across levels or a step between two levels.
@@ -591,16 +686,26 @@ static void *boot_worker(void *arg)
 	struct model bm = *md;
 	bm.k = xmalloc(md->n * sizeof *bm.k);
 	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	/* The derivative in θ2 vanishes on a lapse bound, so a gradient search started there would
+	 * never move λ: start the refits 1% of the range inside. */
+	double start2 = j->th0[2];
+	if (md->lapse_free) {
+		double l = md->lapse_max * (1 + sin(start2)) / 2;
+		start2 = lapse_theta(md, fmin(0.99 * md->lapse_max, fmax(0.01 * md->lapse_max, l)));
+	}
 	for (int b = j->first; b < j->o->nboot; b += j->stride) {
 		gsl_rng_set(rng, (unsigned long)(mix64(j->o->seed ^ mix64((uint64_t)b)) & 0xffffffffUL));
 		for (size_t i = 0; i < md->n; i++)
 			bm.k[i] = gsl_ran_binomial(rng, j->p[i], (unsigned int)md->nt[i]);
-		double th[3] = {j->th0[0], j->th0[1], j->th0[2]}, v;
+		double th[3] = {j->th0[0], j->th0[1], start2}, v;
 		bool conv = bfgs_search(&bm, th, &v);
 		if (!conv) {
 			memcpy(th, j->th0, sizeof th);
+			th[2] = start2;
 			conv = nm_search(&bm, th, 4000, 1e-6, &v);
 		}
+		if (!conv && bm.lapse_free)
+			conv = lapse_bound_search(&bm, th, &v, false);
 		j->ok[b] = 0;
 		if (!conv)
 			continue;
@@ -726,7 +831,10 @@ int fit_run(const struct fit_point *pts, size_t npts, const struct fit_opts *o,
 	if (precheck(&md, o, r) < 0)
 		goto out;
 	double th[3] = {0, 0, 0}, val;
-	if (!ml_search(&md, th, &val)) {
+	bool conv = ml_search(&md, th, &val);
+	if (md.lapse_free)
+		conv = lapse_bound_search(&md, th, &val, conv);
+	if (!conv) {
 		/* A search that runs off towards a step or a flat line is the data's doing: say so. */
 		if (postcheck(&md, th, r, true) < 0)
 			goto out;
