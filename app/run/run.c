@@ -26,6 +26,7 @@
 #include "adapt.h"
 #include "dclock.h"
 #include "display.h"
+#include "estimate.h"
 #include "frames.h"
 #include "geom.h"
 #include "image.h"
@@ -589,14 +590,6 @@ int run_measure_refresh(struct run_session *s, struct run_refresh *out, char **e
 
 /* ---- blocks ---- */
 
-static double trial_seconds(const struct run_session *s)
-{
-	double ms = 0;
-	for (int e = 0; e < EPOCH_COUNT; e++)
-		ms += e == EPOCH_RESPONSE && s->plan.epoch_frames[e] == 0 ? 600.0 : s->plan.epoch_actual_ms[e];
-	return ms / 1000.0;
-}
-
 int run_block_info(const struct run_session *s, size_t i, struct run_block_info *out)
 {
 	if (i >= s->plan.nblocks)
@@ -611,7 +604,8 @@ int run_block_info(const struct run_session *s, size_t i, struct run_block_info 
 		out->stored += s->stored[b->first + k];
 	out->practice = pb->practice;
 	out->adaptive = pb->adaptive != NULL;
-	out->est_seconds = trial_seconds(s) * (double)b->ntrials;
+	out->trial_seconds = b->trial_seconds;
+	out->est_seconds = b->est_seconds;
 	out->runs = s->runs[i];
 	return 0;
 }
@@ -675,7 +669,8 @@ static void fill_snapshot(struct blockrun *br, struct run_snapshot *sn)
 		sn->session_done += s->stored[k];
 	sn->session_total = s->plan.ntrials;
 	sn->elapsed_s = (double)(dclock_monotonic_ns() - br->t0) / 1e9;
-	double per = br->sum.trials ? sn->elapsed_s / (double)br->sum.trials : trial_seconds(s);
+	double per = estimate_per_trial(s->plan.blocks[br->block].trial_seconds, sn->elapsed_s,
+					br->sum.trials);
 	sn->remaining_s = per * (double)(br->total - br->sum.trials);
 	sn->answered = br->sum.answered;
 	sn->correct = br->sum.correct;
