@@ -35,7 +35,6 @@ static const struct console_key rig_keys[] = {
 	{"Up/Down", "move"},
 	{"Enter", "edit"},
 	{"s", "save and use"},
-	{"Esc", "back without saving"},
 };
 
 static const char *const labels[ROW_COUNT] = {
@@ -224,11 +223,6 @@ static bool rig_key(struct console *c, void *st, int ch)
 	case 's':
 	case 'S':
 		save(c, e);
-		return true;
-	case 'q':
-	case 'Q':
-	case 27:
-		console_pop(c);
 		return true;
 	default:
 		return false;

@@ -24,7 +24,6 @@ static const struct console_key sessions_keys[] = {
 	{"Enter", "results"},
 	{"u", "resume"},
 	{"x", "export"},
-	{"q", "back"},
 };
 
 static void load(struct console *c, struct sessions *s)
@@ -140,11 +139,6 @@ static bool sessions_key(struct console *c, void *st, int ch)
 	case 'X':
 		if (s->n)
 			console_export_push(c, row(s, s->sel)->id);
-		return true;
-	case 'q':
-	case 'Q':
-	case 27:
-		console_pop(c);
 		return true;
 	default:
 		return false;
