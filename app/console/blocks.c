@@ -152,7 +152,7 @@ static void blocks_draw(struct console *c, void *sv)
 	y++;
 	if (st->nblocks) {
 		console_put(c, y++, 2, COLS - 4, CONSOLE_DIM,
-			    "  #  block                  trials       about  kind       state");
+			    "  #  block              trials       about  kind       state");
 		double left = 0, total = 0;
 		for (size_t i = 0; i < st->nblocks; i++) {
 			double e = block_estimate(st, &st->blocks[i]);
@@ -184,7 +184,7 @@ static void blocks_draw(struct console *c, void *sv)
 			}
 			bool sel = (int)i == b->sel && st->phase == CONSOLE_PRES_IDLE;
 			console_putf(c, y, 2, COLS - 4, sel ? CONSOLE_PICK : CONSOLE_PLAIN,
-				     "%s%2zu  %-22.22s %6zu  %10s  %-9s  %s", sel ? ">" : " ", i + 1,
+				     "%s%2zu  %-18.18s %6zu  %10s  %-9s  %s", sel ? ">" : " ", i + 1,
 				     k->name, k->ntrials, dur,
 				     k->practice ? "practice" : k->adaptive ? "adaptive" : "", state);
 		}
@@ -203,8 +203,8 @@ static void blocks_draw(struct console *c, void *sv)
 	if (st->has_summary && y < LINES - 3) {
 		char buf[300];
 		summary_line(buf, sizeof buf, &st->summary);
-		console_put(c, y++, 2, COLS - 4, st->summary.result == 0 ? CONSOLE_OK : CONSOLE_WARN,
-			    buf);
+		y += console_wrap(c, y, 2, COLS - 4, 2,
+				  st->summary.result == 0 ? CONSOLE_OK : CONSOLE_WARN, buf);
 		if (st->summary.error[0])
 			console_put(c, y++, 2, COLS - 4, CONSOLE_BAD, st->summary.error);
 		if (st->summary.refresh_mismatch)

@@ -308,8 +308,11 @@ void console_rig_push(struct console *c, const char *path, double size_deg,
 	number_field(&e->f[ROW_HPX], "height", CONSOLE_INTEGER, b->height_px, 1, 100000);
 	number_field(&e->f[ROW_DIST], "distance", CONSOLE_NUMBER, b->distance_cm, 0.1, 10000);
 	number_field(&e->f[ROW_HZ], "refresh", CONSOLE_NUMBER, b->refresh_hz, 20, 1000);
+	/* Starting from the demo rig, the new profile gets a name of its own, not the demo's. */
+	const struct console_options *o = console_options(c);
+	bool demo = o->rig_is_fallback && o->rig_path && path && !strcmp(o->rig_path, path);
 	console_field_init(&e->f[ROW_NAME], "name", CONSOLE_TEXT, 60,
-			   e->have_base && b->name ? b->name : "");
+			   e->have_base && b->name && !demo ? b->name : "");
 	char num[16];
 	snprintf(num, sizeof num, "%d", e->have_base ? b->display : 0);
 	console_field_init(&e->f[ROW_DISPLAY], "display index", CONSOLE_INTEGER, 2, num);

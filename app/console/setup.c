@@ -169,7 +169,7 @@ static void run_check(struct setup *s)
 			 pl.nblocks, pl.nblocks == 1 ? "" : "s", pl.ntrials,
 			 estimate_format(pl.est_seconds, dur, sizeof dur), p.nchoices, l.n);
 		snprintf(s->epoch_line, sizeof s->epoch_line,
-			 "stimulus %d frames (%.1f ms), fixation %d (%.0f ms), mask %d (%.0f ms)",
+			 "frames: stimulus %d = %.1f ms, fixation %d = %.0f ms, mask %d = %.0f ms",
 			 pl.epoch_frames[EPOCH_STIMULUS], pl.epoch_actual_ms[EPOCH_STIMULUS],
 			 pl.epoch_frames[EPOCH_FIXATION], pl.epoch_actual_ms[EPOCH_FIXATION],
 			 pl.epoch_frames[EPOCH_MASK], pl.epoch_actual_ms[EPOCH_MASK]);
@@ -257,19 +257,21 @@ static void setup_draw(struct console *c, void *st)
 		console_put(c, y, vx, w, CONSOLE_DIM, "choose a protocol to check it");
 		return;
 	}
-	if (s->usable)
-		console_putf(c, y, vx, w, CONSOLE_OK, "ready: %s", s->plan_line);
-	else
-		console_putf(c, y, vx, w, CONSOLE_BAD, "%d problem%s to fix before a session can start",
-			     s->nerrors, s->nerrors == 1 ? "" : "s");
-	y++;
+	if (s->usable) {
+		char ready[260];
+		snprintf(ready, sizeof ready, "ready: %s", s->plan_line);
+		y += console_wrap(c, y, vx, w, 2, CONSOLE_OK, ready);
+	} else {
+		console_putf(c, y++, vx, w, CONSOLE_BAD, "%d problem%s to fix before a session can "
+			     "start", s->nerrors, s->nerrors == 1 ? "" : "s");
+	}
 	if (s->nwarnings && y <= bottom)
 		console_putf(c, y++, vx, w, CONSOLE_WARN, "%d warning%s: p lists %s", s->nwarnings,
 			     s->nwarnings == 1 ? "" : "s", s->nwarnings == 1 ? "it" : "them");
 	if (s->geom_line[0] && y <= bottom)
 		console_put(c, y++, vx, w, CONSOLE_PLAIN, s->geom_line);
 	if (s->usable && y <= bottom)
-		console_put(c, y++, vx, w, CONSOLE_DIM, s->epoch_line);
+		y += console_wrap(c, y, vx, w, bottom - y + 1, CONSOLE_DIM, s->epoch_line);
 	char line[1024];
 	int shown = 0;
 	for (size_t i = (size_t)s->scroll; i < s->diags.n && y <= bottom; i++, shown++) {
