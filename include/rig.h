@@ -22,6 +22,7 @@ struct rig {
 	int display;       /* display index for the observer's window */
 	enum rig_corner marker_corner;
 	int marker_px;     /* side of the square marker patch */
+	int max_image_side; /* widest or tallest image file accepted, px (default: image.h's) */
 };
 
 /* Loads and validates PATH; every problem goes to D as FILE:LINE. Returns 0 when usable, -1 when

@@ -48,7 +48,7 @@ static int cmp_path(const void *a, const void *b)
 	return c ? c : (x->i > y->i) - (x->i < y->i);
 }
 
-static void probe_images(const struct stimlist *l, struct image_summary *sum,
+static void probe_images(const struct stimlist *l, long max_side, struct image_summary *sum,
 			 struct diag_list *d, int **w_out, int **h_out)
 {
 	struct by_path *sorted = xmalloc((l->n ? l->n : 1) * sizeof *sorted);
@@ -71,7 +71,7 @@ static void probe_images(const struct stimlist *l, struct image_summary *sum,
 		}
 		struct image_info info;
 		char err[512];
-		if (image_probe(s->path, &info, err, sizeof err)) {
+		if (image_probe_max(s->path, max_side, &info, err, sizeof err)) {
 			diag_add(d, DIAG_ERROR, l->path, s->line, "image '%s': %s", s->image, err);
 			continue;
 		}
@@ -393,11 +393,12 @@ int cmd_check(int argc, char **argv)
 	} else if (p.stimuli) {
 		list_ok = stimlist_load(p.stimuli, p.nchoices ? &p : NULL, &l, &d) == 0;
 		struct image_summary sum = {0};
-		probe_images(&l, &sum, &d, &w, &h);
+		long max_side = rig_ok ? r.max_image_side : 0;
+		probe_images(&l, max_side, &sum, &d, &w, &h);
 		if (p.mask == MASK_IMAGE && p.mask_image) {
 			struct image_info info;
 			char err[512];
-			if (image_probe(p.mask_image, &info, err, sizeof err))
+			if (image_probe_max(p.mask_image, max_side, &info, err, sizeof err))
 				diag_add(&d, DIAG_ERROR, p.path, p.mask_image_line, "mask_image: %s", err);
 		}
 	}
