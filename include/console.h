@@ -164,7 +164,8 @@ struct console_block {
 	char name[64];
 	size_t ntrials, stored;
 	bool practice, adaptive;
-	double est_seconds;
+	double trial_seconds;      /* planned seconds per trial (estimate.h) */
+	double est_seconds;        /* planned seconds of the block */
 	int runs;
 };
 
@@ -231,6 +232,8 @@ struct console_pres_state {
 	bool has_summary;
 	struct console_summary summary;        /* the last block that ended */
 	long nsummaries;
+	double measured_s;                     /* trials run in this session so far: their time */
+	size_t measured_trials;                /* and their number (estimate_per_trial) */
 	bool block_has_result[CONSOLE_MAX_BLOCKS];
 	struct console_summary block_result[CONSOLE_MAX_BLOCKS];
 	char error[1024];                      /* last error the child reported */
@@ -288,5 +291,17 @@ void console_text_push(struct console *c, const char *title, char **lines, size_
 
 /* ---- shared state the screens read and write ---- */
 const struct console_options *console_options(const struct console *c);
+
+/* What the set-up form of a new session held when it was left, kept for the console's life so
+ * that going back and coming again never loses what was typed (a saved rig included). After a
+ * session opens from it, the subject and seed are cleared (the next session is another one). */
+struct console_draft {
+	bool set;
+	char protocol[CONSOLE_FIELD_MAX], subject[CONSOLE_FIELD_MAX], rig[CONSOLE_FIELD_MAX];
+	char seed[CONSOLE_FIELD_MAX], model[CONSOLE_FIELD_MAX];
+	int display;
+	bool model_on;
+};
+struct console_draft *console_draft(struct console *c);
 
 #endif

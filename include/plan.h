@@ -31,6 +31,8 @@ struct plan_block {
 	int proto_block;  /* index into protocol.blocks */
 	size_t first;     /* index of its first trial in plan.trials */
 	size_t ntrials;
+	double trial_seconds;     /* planned seconds per trial (estimate.h) */
+	double est_seconds;       /* planned seconds of the block, refresh measurement included */
 };
 
 struct plan {
@@ -43,7 +45,7 @@ struct plan {
 	double epoch_actual_ms[EPOCH_COUNT];
 	int stim_px;              /* stimulus longer side in pixels on this rig */
 	double stim_deg_actual;   /* what stim_px subtends */
-	double est_seconds;       /* estimated session length (RT assumed 600 ms when unlimited) */
+	double est_seconds;       /* planned session length: the sum of the blocks' (estimate.h) */
 	char hash[65];            /* SHA-256 of the plan's trial sequence, for resume checks */
 };
 

@@ -127,7 +127,8 @@ struct run_block_info {
 	size_t stored;            /* planned trials of this block already stored (resume) */
 	bool practice;
 	bool adaptive;
-	double est_seconds;       /* estimated duration */
+	double trial_seconds;     /* planned seconds per trial (estimate.h) */
+	double est_seconds;       /* planned seconds of the block (estimate.h) */
 	int runs;                 /* how often it was run (or skipped) in this process */
 };
 

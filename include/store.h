@@ -111,6 +111,10 @@ int store_event(struct store *s, const char *session_id, const char *kind, const
 		char **err);
 /* Records the measured refresh for SESSION. */
 int store_session_refresh(struct store *s, const char *session_id, double hz, char **err);
+/* Deletes SESSION (its events with it) only while it has no trials and is not running. Returns
+ * 0, or -1 with *ERR saying why (trials stored, running, no such session). A note on a session
+ * is an event of kind "note" (store_event). */
+int store_session_delete_empty(struct store *s, const char *session_id, char **err);
 /* Sets STATUS and the end time. */
 int store_session_end(struct store *s, const char *session_id, enum store_status status,
 		      char **err);

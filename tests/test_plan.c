@@ -191,6 +191,10 @@ static void plan_testFramesAndDuration(void **state)
 			    "as 8 frames = 94.1 ms");
 	double per_trial = 34000.0 / 85 + 8000.0 / 85 + 600 + 42000.0 / 85;
 	assert_float_equal(a.est_seconds, (9 * per_trial + 120000.0 / 85) / 1000.0, 1e-9);
+	/* The block carries the same estimate (the console's blocks screen shows it). */
+	assert_int_equal(a.nblocks, 1);
+	assert_float_equal(a.blocks[0].trial_seconds, per_trial / 1000.0, 1e-9);
+	assert_float_equal(a.blocks[0].est_seconds, a.est_seconds, 1e-9);
 	/* 4° at 57 cm on 1920 px / 53 cm: 144 px (see test_geom). */
 	assert_int_equal(a.stim_px, 144);
 	plan_clear(&a);

@@ -473,6 +473,54 @@ static void store_testEvents(void **state)
 	store_close(s);
 }
 
+/* A session without trials can be deleted (its events and notes with it), one with trials or
+ * still running cannot, and each refusal says why. */
+static void store_testDeleteEmpty(void **state)
+{
+	(void)state;
+	struct store_session a, b;
+	struct store *s = open_with_session("del.db", "S04", &a);
+	char *err = NULL;
+	memset(&b, 0, sizeof b);
+	b.subject = xstrdup("S05");
+	b.timing_mode = xstrdup("simulated");
+	assert_int_equal(store_session_begin(s, &b, &err), 0);
+	put_trials(s, b.id, 0, 1, NULL, NULL);
+	assert_int_equal(store_event(s, a.id, "note", "projector flickered; rerun", &err), 0);
+	/* still running */
+	assert_int_equal(store_session_delete_empty(s, a.id, &err), -1);
+	assert_non_null(strstr(err, "is running"));
+	free(err);
+	err = NULL;
+	assert_int_equal(store_session_end(s, a.id, STORE_ABORTED, &err), 0);
+	assert_int_equal(store_session_end(s, b.id, STORE_ABORTED, &err), 0);
+	/* one trial stored */
+	assert_int_equal(store_session_delete_empty(s, b.id, &err), -1);
+	assert_non_null(strstr(err, "holds 1 trial;"));
+	free(err);
+	err = NULL;
+	assert_int_equal(store_session_delete_empty(s, a.id, &err), 0);
+	struct store_session got;
+	memset(&got, 0, sizeof got);
+	assert_int_equal(store_session_get(s, a.id, &got, &err), -1);
+	free(err);
+	err = NULL;
+	struct store_event_row *e = NULL;
+	size_t n = 9;
+	assert_int_equal(store_events_load(s, a.id, &e, &n, &err), 0);
+	assert_int_equal(n, 0);   /* the note went with the session */
+	store_events_free(e, n);
+	assert_int_equal(store_session_delete_empty(s, a.id, &err), -1);
+	assert_non_null(strstr(err, "no session"));
+	free(err);
+	err = NULL;
+	assert_int_equal(store_session_get(s, b.id, &got, &err), 0);   /* the other one stays */
+	store_session_clear(&got);
+	store_session_clear(&a);
+	store_session_clear(&b);
+	store_close(s);
+}
+
 /* The pid of a child that has exited and been reaped: kill(pid, 0) then fails with ESRCH (until
  * the pid is reused, which a test run does not wait for). */
 static long dead_pid(void)
@@ -1316,6 +1364,7 @@ int main(void)
 		cmocka_unit_test(store_testTrialRoundTrip),
 		cmocka_unit_test(store_testDuplicateTrialRefused),
 		cmocka_unit_test(store_testEvents),
+		cmocka_unit_test(store_testDeleteEmpty),
 		cmocka_unit_test(store_testRecoverAndList),
 		cmocka_unit_test(store_testRecoverOwner),
 		cmocka_unit_test(store_testMigrateV2),

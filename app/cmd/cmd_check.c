@@ -14,6 +14,7 @@
 
 #include "adapt.h"
 #include "cmd.h"
+#include "estimate.h"
 #include "geom.h"
 #include "inputs.h"
 
@@ -91,9 +92,9 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 		       pb->order == ORDER_RANDOM ? "random" : "fixed", pb->longest_streak,
 		       pb->feedback ? "yes" : "no", cond);
 	}
-	long secs = lround(pl->est_seconds);
-	printf("\ntotal %zu trials in %zu block%s, about %ld min %02ld s\n", pl->ntrials, pl->nblocks,
-	       pl->nblocks == 1 ? "" : "s", secs / 60, secs % 60);
+	char dur[32];
+	printf("\ntotal %zu trials in %zu block%s, about %s\n", pl->ntrials, pl->nblocks,
+	       pl->nblocks == 1 ? "" : "s", estimate_format(pl->est_seconds, dur, sizeof dur));
 }
 
 static cJSON *json_doc(const struct protocol *p, const struct rig *r, const struct stimlist *l,

@@ -12,6 +12,7 @@
 #include <string.h>
 
 #include "diag.h"
+#include "estimate.h"
 #include "run.h"
 #include "store.h"
 
@@ -24,25 +25,21 @@ struct blocks {
 };
 
 static const struct console_key blocks_keys[] = {
-	{"Up/Down", "choose"},
 	{"Enter", "start block"},
+	{"Up/Down", "choose"},
 	{"k", "skip"},
 	{"a", "run again"},
 	{"r", "results"},
 	{"c", "close session"},
 };
 
-static void fmt_duration(char *buf, size_t len, double s)
+/* A block's estimated length: planned until trials have run in this session, then from their
+ * measured mean duration (estimate.h), keeping the block's refresh measurement. */
+static double block_estimate(const struct console_pres_state *st, const struct console_block *k)
 {
-	if (!(s >= 0) || !isfinite(s)) {
-		snprintf(buf, len, "-");
-		return;
-	}
-	long t = lround(s);
-	if (t >= 3600)
-		snprintf(buf, len, "%ld:%02ld:%02ld", t / 3600, t / 60 % 60, t % 60);
-	else
-		snprintf(buf, len, "%ld:%02ld", t / 60, t % 60);
+	double overhead = k->est_seconds - k->trial_seconds * (double)k->ntrials;
+	double per = estimate_per_trial(k->trial_seconds, st->measured_s, st->measured_trials);
+	return per * (double)k->ntrials + (overhead > 0 ? overhead : 0);
 }
 
 static int first_to_run(const struct console_pres_state *st, const struct blocks *b)
@@ -67,6 +64,28 @@ static void summary_line(char *buf, size_t len, const struct console_summary *s)
 		 s->trials, acc, rt, s->faults, s->faults == 1 ? "" : "s");
 }
 
+/* The run layer words its advice for the command line (a --headless flag); the console has a
+ * form row for it instead. Copies ERR into OUT, cut before that advice and with the console's own
+ * words in its place. */
+static void console_words(const char *err, char *out, size_t len)
+{
+	const char *flag = strstr(err, "--headless");
+	if (!flag) {
+		snprintf(out, len, "%s", err);
+		return;
+	}
+	const char *cut = flag;
+	for (const char *q = err; q < flag; q++)
+		if (*q == ';')
+			cut = q;
+	if (cut == flag)
+		for (const char *q = err; q + 4 < flag; q++)
+			if (!strncmp(q, ", or", 4))
+				cut = q;
+	snprintf(out, len, "%.*s. Go back (Esc) to the set-up form and choose a headless display "
+		 "there for simulated timing.", (int)(cut - err), err);
+}
+
 static void draw_state(struct console *c, const struct console_pres_state *st, int y)
 {
 	int w = COLS - 4;
@@ -89,10 +108,13 @@ static void draw_state(struct console *c, const struct console_pres_state *st, i
 		y += console_wrap(c, y, 2, w, 4, CONSOLE_BAD, buf);
 		break;
 	}
-	case CONSOLE_PRES_FAILED:
-		y += console_wrap(c, y, 2, w, 4, CONSOLE_BAD,
-				  st->error[0] ? st->error : "The session could not go on.");
+	case CONSOLE_PRES_FAILED: {
+		char words[1200];
+		console_words(st->error[0] ? st->error : "The session could not go on", words,
+			      sizeof words);
+		y += console_wrap(c, y, 2, w, 4, CONSOLE_BAD, words);
 		break;
+	}
 	case CONSOLE_PRES_CLOSED:
 		console_put(c, y++, 2, w, CONSOLE_OK,
 			    "Session closed. Every trial is in the database; r shows the results.");
@@ -107,7 +129,9 @@ static void draw_state(struct console *c, const struct console_pres_state *st, i
 	}
 	for (int i = 0; i < st->ndiags && y < LINES - 3; i++)
 		console_put(c, y++, 4, w - 2, CONSOLE_BAD, st->diags[i]);
-	if (st->phase != CONSOLE_PRES_CLOSED)
+	/* What the presentation process printed (libraries' own messages among it) helps only
+	 * when it died unexpectedly. */
+	if (st->phase == CONSOLE_PRES_CRASHED)
 		for (int i = st->nlog > 3 ? st->nlog - 3 : 0; i < st->nlog && y < LINES - 3; i++)
 			console_put(c, y++, 4, w - 2, CONSOLE_DIM, st->log[i]);
 }
@@ -128,11 +152,19 @@ static void blocks_draw(struct console *c, void *sv)
 	y++;
 	if (st->nblocks) {
 		console_put(c, y++, 2, COLS - 4, CONSOLE_DIM,
-			    "  #  block                  trials   about    kind       state");
-		for (size_t i = 0; i < st->nblocks && y < LINES - 6; i++, y++) {
+			    "  #  block              trials       about  kind       state");
+		double left = 0, total = 0;
+		for (size_t i = 0; i < st->nblocks; i++) {
+			double e = block_estimate(st, &st->blocks[i]);
+			total += e;
+			if (st->blocks[i].stored < st->blocks[i].ntrials && !b->skipped[i])
+				left += e * (double)(st->blocks[i].ntrials - st->blocks[i].stored) /
+					(double)st->blocks[i].ntrials;
+		}
+		for (size_t i = 0; i < st->nblocks && y < LINES - 7; i++, y++) {
 			const struct console_block *k = &st->blocks[i];
 			char dur[32], state[80];
-			fmt_duration(dur, sizeof dur, k->est_seconds);
+			estimate_format(block_estimate(st, k), dur, sizeof dur);
 			if (k->stored >= k->ntrials && k->ntrials)
 				snprintf(state, sizeof state, "done");
 			else if (k->stored)
@@ -152,17 +184,27 @@ static void blocks_draw(struct console *c, void *sv)
 			}
 			bool sel = (int)i == b->sel && st->phase == CONSOLE_PRES_IDLE;
 			console_putf(c, y, 2, COLS - 4, sel ? CONSOLE_PICK : CONSOLE_PLAIN,
-				     "%s%2zu  %-22.22s %6zu   %6s   %-9s  %s", sel ? ">" : " ", i + 1,
+				     "%s%2zu  %-18.18s %6zu  %10s  %-9s  %s", sel ? ">" : " ", i + 1,
 				     k->name, k->ntrials, dur,
 				     k->practice ? "practice" : k->adaptive ? "adaptive" : "", state);
 		}
+		char t1[32], t2[32];
+		if (st->measured_trials)
+			console_putf(c, y++, 2, COLS - 4, CONSOLE_DIM, "session about %s, %s left "
+				     "(from %zu trials run, %.2f s each)",
+				     estimate_format(total, t1, sizeof t1),
+				     estimate_format(left, t2, sizeof t2), st->measured_trials,
+				     st->measured_s / (double)st->measured_trials);
+		else
+			console_putf(c, y++, 2, COLS - 4, CONSOLE_DIM, "session about %s (planned)",
+				     estimate_format(total, t1, sizeof t1));
 		y++;
 	}
 	if (st->has_summary && y < LINES - 3) {
 		char buf[300];
 		summary_line(buf, sizeof buf, &st->summary);
-		console_put(c, y++, 2, COLS - 4, st->summary.result == 0 ? CONSOLE_OK : CONSOLE_WARN,
-			    buf);
+		y += console_wrap(c, y, 2, COLS - 4, 2,
+				  st->summary.result == 0 ? CONSOLE_OK : CONSOLE_WARN, buf);
 		if (st->summary.error[0])
 			console_put(c, y++, 2, COLS - 4, CONSOLE_BAD, st->summary.error);
 		if (st->summary.refresh_mismatch)

@@ -42,6 +42,7 @@ struct console {
 	void (*answer)(struct console *c, void *ud, bool yes);
 	void *answer_ud;
 	struct console_pres *pres;        /* the session's presentation child, or NULL */
+	struct console_draft draft;       /* the set-up form as last left */
 };
 
 /* ---- terminal restoration (process-wide; the one place with file-scope state) ---- */
@@ -362,6 +363,11 @@ const struct console_options *console_options(const struct console *c)
 	return &c->opt;
 }
 
+struct console_draft *console_draft(struct console *c)
+{
+	return &c->draft;
+}
+
 /* ---- painting ---- */
 
 static void draw_title(struct console *c, const struct console_screen *s)
@@ -382,7 +388,9 @@ static void draw_title(struct console *c, const struct console_screen *s)
 		console_put(c, 0, COLS - rw, rw, CONSOLE_TITLE, right);
 }
 
-/* The key line: this screen's keys, then the framework's, cut to the width. */
+/* The key line: this screen's keys from the left, the framework's at the right end ("Esc back",
+ * or "Esc leave" on the first screen, and "? help"). Keys that do not fit are never dropped
+ * silently: the help key then reads "? more keys" and the overlay lists them all. */
 static void draw_keys(struct console *c, const struct console_screen *s)
 {
 	int y = LINES - 1, x = 1;
@@ -394,23 +402,31 @@ static void draw_keys(struct console *c, const struct console_screen *s)
 		console_put(c, y, x, COLS - x, CONSOLE_PLAIN, " no");
 		return;
 	}
-	/* "? help" always shows, at the right end; the screen's keys fill what is left. */
-	int right = COLS - 8;
-	console_put(c, y, right + 1, 1, CONSOLE_KEY, "?");
-	console_put(c, y, right + 3, 4, CONSOLE_DIM, "help");
-	for (size_t i = 0; s && i < s->nkeys; i++) {
-		const char *k = s->keys[i].key, *w = s->keys[i].what;
+	const char *back = c->depth > 1 ? "back" : "leave";
+	size_t shown = 0;
+	int right = COLS - 1 - (int)strlen("Esc ") - (int)strlen(back) - 2 - (int)strlen("? help");
+	for (; s && shown < s->nkeys; shown++) {
+		const char *k = s->keys[shown].key, *w = s->keys[shown].what;
 		int need = text_cols(k, strlen(k)) + 1 + text_cols(w, strlen(w)) + 2;
-		if (x + need > right)
+		/* The last key may use the room "more keys" would need. */
+		int room = shown + 1 == s->nkeys ? right : right - (int)strlen(" more keys");
+		if (x + need > room)
 			break;
 		x += console_put(c, y, x, COLS - x, CONSOLE_KEY, k);
 		x += console_put(c, y, x + 1, COLS - x, CONSOLE_DIM, w) + 3;
 	}
+	bool more = s && shown < s->nkeys;
+	int rx = right + (more ? -(int)strlen(" more keys") : 0);
+	rx += console_put(c, y, rx, 3, CONSOLE_KEY, "Esc");
+	rx += console_put(c, y, rx + 1, COLS - rx, CONSOLE_DIM, back) + 3;
+	console_put(c, y, rx, 1, CONSOLE_KEY, "?");
+	console_put(c, y, rx + 2, COLS - rx - 2, more ? CONSOLE_WARN : CONSOLE_DIM,
+		    more ? "more keys" : "help");
 }
 
 static void draw_help(struct console *c, const struct console_screen *s)
 {
-	int n = (int)(s ? s->nkeys : 0) + 6;
+	int n = (int)(s ? s->nkeys : 0) + 7;
 	int h = n + 4, w = 64;
 	if (h > LINES - 2)
 		h = LINES - 2;
@@ -427,12 +443,13 @@ static void draw_help(struct console *c, const struct console_screen *s)
 		console_put(c, y, x0 + 19, w - 21, CONSOLE_FIELD, s->keys[i].what);
 	}
 	static const struct console_key global[] = {
+		{"Esc or q", "back to the screen before (on the first: leave)"},
 		{"?", "show or hide this help"},
 		{"Ctrl-L", "repaint the screen"},
 		{"Ctrl-C", "leave now; stored trials are kept"},
 	};
 	y++;
-	for (size_t i = 0; i < 3 && y < y0 + h - 1; i++, y++) {
+	for (size_t i = 0; i < 4 && y < y0 + h - 1; i++, y++) {
 		console_put(c, y, x0 + 2, 16, CONSOLE_FIELD, global[i].key);
 		console_put(c, y, x0 + 19, w - 21, CONSOLE_FIELD, global[i].what);
 	}
@@ -445,7 +462,7 @@ static void draw_too_small(struct console *c)
 	char line[200];
 	snprintf(line, sizeof line,
 		 "This terminal is %dx%d. The console needs at least %dx%d. "
-		 "Make the window larger to go on, or press q to leave.",
+		 "Make the window larger to go on, or press Esc or q to leave.",
 		 COLS, LINES, CONSOLE_MIN_COLS, CONSOLE_MIN_LINES);
 	console_wrap(c, 0, 0, COLS, LINES, CONSOLE_WARN, line);
 	refresh();
@@ -495,7 +512,7 @@ static void handle_key(struct console *c, int ch)
 	struct console_screen *s = console_top(c);
 	bool small = COLS < CONSOLE_MIN_COLS || LINES < CONSOLE_MIN_LINES;
 	if (small) {
-		if (ch == 'q' || ch == 'Q')
+		if (ch == 'q' || ch == 'Q' || ch == 27)
 			c->quit = true;
 		return;
 	}
@@ -512,6 +529,11 @@ static void handle_key(struct console *c, int ch)
 		}
 		return;
 	}
+	/* Esc first puts a message away; only the next Esc goes back. */
+	if (ch == 27 && c->msg[0] && !(s && s->editing)) {
+		c->msg[0] = '\0';
+		return;
+	}
 	c->msg[0] = '\0';
 	if (ch == 12) {   /* Ctrl-L */
 		clearok(curscr, TRUE);
@@ -519,8 +541,13 @@ static void handle_key(struct console *c, int ch)
 	}
 	if (s && s->key && s->key(c, s->st, ch))
 		return;
-	if (ch == '?' && !(s && s->editing))
+	if (s && s->editing)
+		return;
+	if (ch == '?')
 		c->help = true;
+	/* The one back key of every screen (a screen that must ask first takes it itself). */
+	if (ch == 27 || ch == 'q' || ch == 'Q')
+		console_pop(c);
 }
 
 int console_main(const struct console_options *o)

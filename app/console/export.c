@@ -36,7 +36,6 @@ static const struct console_key export_keys[] = {
 	{"Left/Right", "choose"},
 	{"Enter", "edit path"},
 	{"w", "write"},
-	{"Esc", "back"},
 };
 
 static const char *const format_names[] = {
@@ -232,11 +231,6 @@ static bool export_key(struct console *c, void *st, int ch)
 	case 'w':
 	case 'W':
 		try_write(c, e);
-		return true;
-	case 'q':
-	case 'Q':
-	case 27:
-		console_pop(c);
 		return true;
 	default:
 		return false;

@@ -199,6 +199,7 @@ static void send_blocks(int fd, struct run_session *s)
 		b->stored = bi.stored;
 		b->practice = bi.practice;
 		b->adaptive = bi.adaptive;
+		b->trial_seconds = bi.trial_seconds;
 		b->est_seconds = bi.est_seconds;
 		b->runs = bi.runs;
 		send_wait(fd, &m);
@@ -423,6 +424,13 @@ static void take_msg(struct console_pres *p, const struct pres_msg *m)
 		st->nsnaps++;
 		break;
 	case MSG_SUMMARY:
+		/* The block's last snapshot holds its run time and trial count: measured durations
+		 * then replace planned ones in every estimate (estimate_per_trial). */
+		if (st->has_snap && st->snap.block == m->u.sum.block && st->snap.trial_n > 0 &&
+		    st->snap.elapsed_s > 0) {
+			st->measured_s += st->snap.elapsed_s;
+			st->measured_trials += st->snap.trial_n;
+		}
 		st->summary = m->u.sum;
 		st->has_summary = true;
 		st->nsummaries++;

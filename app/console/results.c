@@ -44,7 +44,6 @@ static const struct console_key results_keys[] = {
 	{"Left/Right", "series or level"},
 	{"Up/Down", "scroll"},
 	{"x", "export"},
-	{"q", "back"},
 };
 
 static const char *const view_names[VIEW_COUNT] = {"accuracy", "curve", "confusions", "timing"};
@@ -427,11 +426,6 @@ static bool results_key(struct console *c, void *st, int ch)
 	case 'X':
 		if (!r->error[0])
 			console_export_push(c, r->ss.id);
-		return true;
-	case 'q':
-	case 'Q':
-	case 27:
-		console_pop(c);
 		return true;
 	default:
 		return false;

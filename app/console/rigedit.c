@@ -17,12 +17,14 @@
 #include "geom.h"
 #include "rig_file.h"
 
-enum row { ROW_WCM, ROW_HCM, ROW_WPX, ROW_HPX, ROW_DIST, ROW_HZ, ROW_PATH, ROW_COUNT };
+enum row { ROW_NAME, ROW_WCM, ROW_HCM, ROW_WPX, ROW_HPX, ROW_DIST, ROW_HZ, ROW_DISPLAY,
+	   ROW_CORNER, ROW_MARKER, ROW_PATH, ROW_COUNT };
 
 struct rigedit {
-	struct console_field f[ROW_COUNT];
+	struct console_field f[ROW_COUNT];   /* ROW_CORNER is a choice, not a field */
 	int row;
-	struct rig base;            /* the profile as loaded: name, display and marker are kept */
+	int corner;                 /* enum rig_corner */
+	struct rig base;            /* the profile as loaded */
 	bool have_base;
 	double size_deg;            /* the protocol's stimulus size, 0 when unknown */
 	void (*saved)(struct console *c, void *ud, const char *path);
@@ -32,34 +34,35 @@ struct rigedit {
 };
 
 static const struct console_key rig_keys[] = {
-	{"Up/Down", "move"},
-	{"Enter", "edit"},
 	{"s", "save and use"},
-	{"Esc", "back without saving"},
+	{"Enter", "edit"},
+	{"Up/Down", "move"},
+	{"Left/Right", "corner"},
 };
 
 static const char *const labels[ROW_COUNT] = {
-	"Width (cm)", "Height (cm)", "Width (px)", "Height (px)", "Distance (cm)", "Refresh (Hz)",
-	"Save to",
+	"Name", "Width (cm)", "Height (cm)", "Width (px)", "Height (px)", "Distance (cm)",
+	"Refresh (Hz)", "Display index", "Marker corner", "Marker (px)", "Save to",
 };
 
-/* The rig INI text the fields describe (malloc'd); name, display and marker from the base. */
+static const char *const corners[] = {"none", "top-left", "top-right", "bottom-left",
+				      "bottom-right"};
+#define NCORNERS (sizeof corners / sizeof corners[0])
+
+/* The rig INI text the fields describe (malloc'd). Empty optional fields are left out, so the
+ * parser's defaults apply. */
 static char *rig_text(const struct rigedit *e)
 {
-	const struct rig *b = e->have_base ? &e->base : NULL;
-	static const char *const corners[] = {"none", "top-left", "top-right", "bottom-left",
-					      "bottom-right"};
-	int corner = b ? (int)b->marker_corner : 0;
-	if (corner < 0 || corner > 4)
-		corner = 0;
+	const char *name = e->f[ROW_NAME].len ? e->f[ROW_NAME].text : "bench";
+	const char *disp = e->f[ROW_DISPLAY].len ? e->f[ROW_DISPLAY].text : "0";
+	const char *mpx = e->f[ROW_MARKER].len ? e->f[ROW_MARKER].text : "40";
 	return xasprintf("; Rig profile written by the tachist console.\n"
 			 "[screen]\nname = %s\nwidth_cm = %s\nheight_cm = %s\nwidth_px = %s\n"
-			 "height_px = %s\ndistance_cm = %s\nrefresh_hz = %s\ndisplay = %d\n\n"
-			 "[marker]\ncorner = %s\nsize_px = %d\n",
-			 b && b->name ? b->name : "bench", e->f[ROW_WCM].text, e->f[ROW_HCM].text,
-			 e->f[ROW_WPX].text, e->f[ROW_HPX].text, e->f[ROW_DIST].text,
-			 e->f[ROW_HZ].text, b ? b->display : 0, corners[corner],
-			 b && b->marker_px > 0 ? b->marker_px : 40);
+			 "height_px = %s\ndistance_cm = %s\nrefresh_hz = %s\ndisplay = %s\n\n"
+			 "[marker]\ncorner = %s\nsize_px = %s\n",
+			 name, e->f[ROW_WCM].text, e->f[ROW_HCM].text, e->f[ROW_WPX].text,
+			 e->f[ROW_HPX].text, e->f[ROW_DIST].text, e->f[ROW_HZ].text, disp,
+			 corners[e->corner >= 0 && (size_t)e->corner < NCORNERS ? e->corner : 0], mpx);
 }
 
 /* Parses the fields as a rig; fills R (cleared by the caller) or PROBLEM. */
@@ -70,6 +73,12 @@ static int as_rig(struct rigedit *e, struct rig *r)
 	diag_init(&d);
 	int rc = rig_parse("(rig being edited)", text, r, &d);
 	e->problem[0] = '\0';
+	/* A name the INI reader would cut (a comment mark) is refused rather than changed. */
+	if (rc == 0 && e->f[ROW_NAME].len && (!r->name || strcmp(r->name, e->f[ROW_NAME].text))) {
+		snprintf(e->problem, sizeof e->problem, "the name may not hold ';' or '#' after a "
+			 "space, nor begin or end with spaces");
+		rc = -1;
+	}
 	for (size_t i = 0; i < d.n; i++)
 		if (d.v[i].level == DIAG_ERROR) {
 			snprintf(e->problem, sizeof e->problem, "%s", d.v[i].msg);
@@ -86,29 +95,48 @@ static void rig_draw(struct console *c, void *st)
 	int y = console_body_top(), vx = 18, w = COLS - vx - 2;
 	console_put(c, y, 2, COLS - 4, CONSOLE_HEAD, "The observer's display");
 	y += 2;
+	const char *msg = NULL;
 	for (int row = 0; row < ROW_COUNT; row++) {
 		bool f = e->row == row;
 		if (row == ROW_PATH)
 			y++;
 		console_put(c, y, 0, 2, CONSOLE_HEAD, f ? (console_utf8(c) ? "\u25b8" : ">") : "");
 		console_put(c, y, 2, vx - 2, f ? CONSOLE_HEAD : CONSOLE_DIM, labels[row]);
-		console_field_draw(c, &e->f[row], y, vx, row == ROW_PATH ? w : 12, f);
-		y += 2;
+		if (row == ROW_CORNER) {
+			char buf[80];
+			snprintf(buf, sizeof buf, "%s %s %s", console_utf8(c) ? "\u25c2" : "<",
+				 corners[e->corner], console_utf8(c) ? "\u25b8" : ">");
+			console_put(c, y++, vx, w, f ? CONSOLE_PICK : CONSOLE_PLAIN, buf);
+			continue;
+		}
+		/* One row per field; the focused field's message goes under the list. */
+		struct console_field shown = e->f[row];
+		if (shown.msg[0] && f)
+			msg = e->f[row].msg;
+		shown.msg[0] = '\0';
+		console_field_draw(c, &shown, y, vx, row == ROW_PATH || row == ROW_NAME ? w : 12, f);
+		if (row == ROW_DISPLAY && !f)
+			console_put(c, y, vx + 14, w - 14, CONSOLE_DIM, "0 = the first display");
+		if (row == ROW_MARKER && !f)
+			console_put(c, y, vx + 14, w - 14, CONSOLE_DIM,
+				    "photodiode patch, drawn with each stimulus");
+		y++;
 	}
+	if (msg)
+		console_put(c, y, vx, w, CONSOLE_BAD, msg);
+	y++;
 	struct rig r;
 	memset(&r, 0, sizeof r);
 	if (as_rig(e, &r) == 0) {
 		double deg1 = 0;
-		console_putf(c, y++, 2, COLS - 4, CONSOLE_OK, "%.2f px per degree at the centre of the screen",
-			     geom_px_per_deg(&r));
+		console_putf(c, y++, 2, COLS - 4, CONSOLE_OK, "%.2f px per degree at the centre of the "
+			     "screen; one frame lasts %.3f ms", geom_px_per_deg(&r), 1000.0 / r.refresh_hz);
 		if (e->size_deg > 0) {
 			int px = geom_deg_to_px(&r, e->size_deg, &deg1);
 			console_putf(c, y++, 2, COLS - 4, CONSOLE_OK,
 				     "the protocol's stimulus of %.2f deg is %d px, which subtends %.3f deg",
 				     e->size_deg, px, deg1);
 		}
-		console_putf(c, y++, 2, COLS - 4, CONSOLE_DIM, "one frame lasts %.3f ms",
-			     1000.0 / r.refresh_hz);
 	} else {
 		console_wrap(c, y, 2, COLS - 4, 2, CONSOLE_BAD, e->problem);
 	}
@@ -165,6 +193,9 @@ static void save(struct console *c, struct rigedit *e)
 		make_default_folder(e->dflt);
 	for (int row = 0; row < ROW_COUNT; row++) {
 		struct console_field *f = &e->f[row];
+		bool optional = row == ROW_NAME || row == ROW_DISPLAY || row == ROW_MARKER;
+		if (row == ROW_CORNER || (optional && !f->len))
+			continue;
 		if (console_field_check(f, f->text, f->msg, sizeof f->msg) != 0) {
 			e->row = row;
 			return;
@@ -202,7 +233,7 @@ static bool rig_key(struct console *c, void *st, int ch)
 	struct rigedit *e = st;
 	struct console_screen *me = console_top(c);
 	struct console_field *f = &e->f[e->row];
-	if (f->editing) {
+	if (e->row != ROW_CORNER && f->editing) {
 		if (console_field_key(f, ch) != CONSOLE_FIELD_GOING)
 			me->editing = false;
 		return true;
@@ -215,20 +246,23 @@ static bool rig_key(struct console *c, void *st, int ch)
 	case '\t':
 		e->row = (e->row + 1) % ROW_COUNT;
 		return true;
+	case KEY_LEFT:
+	case KEY_RIGHT:
+		if (e->row == ROW_CORNER)
+			e->corner = (e->corner + (int)NCORNERS + (ch == KEY_RIGHT ? 1 : -1)) %
+				    (int)NCORNERS;
+		return true;
 	case '\n':
 	case '\r':
 	case KEY_ENTER:
+		if (e->row == ROW_CORNER)
+			return rig_key(c, st, KEY_RIGHT);
 		console_field_begin(f);
 		me->editing = true;
 		return true;
 	case 's':
 	case 'S':
 		save(c, e);
-		return true;
-	case 'q':
-	case 'Q':
-	case 27:
-		console_pop(c);
 		return true;
 	default:
 		return false;
@@ -274,6 +308,21 @@ void console_rig_push(struct console *c, const char *path, double size_deg,
 	number_field(&e->f[ROW_HPX], "height", CONSOLE_INTEGER, b->height_px, 1, 100000);
 	number_field(&e->f[ROW_DIST], "distance", CONSOLE_NUMBER, b->distance_cm, 0.1, 10000);
 	number_field(&e->f[ROW_HZ], "refresh", CONSOLE_NUMBER, b->refresh_hz, 20, 1000);
+	/* Starting from the demo rig, the new profile gets a name of its own, not the demo's. */
+	const struct console_options *o = console_options(c);
+	bool demo = o->rig_is_fallback && o->rig_path && path && !strcmp(o->rig_path, path);
+	console_field_init(&e->f[ROW_NAME], "name", CONSOLE_TEXT, 60,
+			   e->have_base && b->name && !demo ? b->name : "");
+	char num[16];
+	snprintf(num, sizeof num, "%d", e->have_base ? b->display : 0);
+	console_field_init(&e->f[ROW_DISPLAY], "display index", CONSOLE_INTEGER, 2, num);
+	e->f[ROW_DISPLAY].min = 0;
+	e->f[ROW_DISPLAY].max = 15;
+	snprintf(num, sizeof num, "%d", e->have_base && b->marker_px > 0 ? b->marker_px : 40);
+	console_field_init(&e->f[ROW_MARKER], "marker size", CONSOLE_INTEGER, 3, num);
+	e->f[ROW_MARKER].min = 1;
+	e->f[ROW_MARKER].max = 500;
+	e->corner = e->have_base ? (int)b->marker_corner : RIG_MARKER_NONE;
 	const char *xdg = getenv("XDG_CONFIG_HOME"), *home = getenv("HOME");
 	char *dflt = xdg && *xdg ? xasprintf("%s/tachist/rig.ini", xdg)
 		   : home && *home ? xasprintf("%s/.config/tachist/rig.ini", home)

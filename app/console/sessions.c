@@ -1,6 +1,9 @@
 /* sessions — every session in the database with its subject, protocol, start, status and trial
  * count; open its results, export it, or resume one that was interrupted or ended early (the
- * set-up form opens with the stored protocol, subject and seed). Newest first. */
+ * set-up form opens with the stored protocol, subject, seed and rig). Newest first.
+ *
+ * Any session can carry notes (events of kind "note", shown under the list for the chosen
+ * session); a session without trials can be deleted after a yes/no question. */
 #include "console.h"
 
 #include <curses.h>
@@ -17,14 +20,19 @@ struct sessions {
 	size_t sel, top;
 	int ticks;
 	char error[300];
+	struct console_field note;   /* the note being typed (editing) */
+	char **notes;                /* notes of the chosen session, oldest first */
+	size_t nnotes;
+	char notes_of[37];           /* session the notes belong to */
 };
 
 static const struct console_key sessions_keys[] = {
-	{"Up/Down", "choose"},
 	{"Enter", "results"},
 	{"u", "resume"},
 	{"x", "export"},
-	{"q", "back"},
+	{"n", "note"},
+	{"d", "delete"},
+	{"Up/Down", "choose"},
 };
 
 static void load(struct console *c, struct sessions *s)
@@ -53,6 +61,42 @@ static struct store_session *row(struct sessions *s, size_t i)
 	return &s->v[s->n - 1 - i];
 }
 
+static void free_notes(struct sessions *s)
+{
+	for (size_t i = 0; i < s->nnotes; i++)
+		free(s->notes[i]);
+	free(s->notes);
+	s->notes = NULL;
+	s->nnotes = 0;
+	s->notes_of[0] = '\0';
+}
+
+/* Reads the notes of the chosen session (when it changed, or FORCE). */
+static void load_notes(struct console *c, struct sessions *s, bool force)
+{
+	if (!s->n) {
+		free_notes(s);
+		return;
+	}
+	const char *id = row(s, s->sel)->id;
+	if (!force && !strcmp(id, s->notes_of))
+		return;
+	free_notes(s);
+	snprintf(s->notes_of, sizeof s->notes_of, "%s", id);
+	struct store *db = NULL;
+	struct store_event_row *ev = NULL;
+	size_t n = 0;
+	if (store_open_existing(console_options(c)->db_path, &db, NULL) == 0 &&
+	    store_events_load(db, id, &ev, &n, NULL) == 0)
+		for (size_t i = 0; i < n; i++)
+			if (!strcmp(ev[i].kind, "note") && ev[i].detail) {
+				s->notes = xrealloc(s->notes, (s->nnotes + 1) * sizeof *s->notes);
+				s->notes[s->nnotes++] = xstrdup(ev[i].detail);
+			}
+	store_events_free(ev, n);
+	store_close(db);
+}
+
 static bool resumable(const struct store_session *ss)
 {
 	return ss->status == STORE_INTERRUPTED || ss->status == STORE_ABORTED ||
@@ -74,15 +118,19 @@ static void sessions_draw(struct console *c, void *st)
 	console_putf(c, y++, 2, w, CONSOLE_HEAD, "%zu session%s", s->n, s->n == 1 ? "" : "s");
 	y++;
 	console_put(c, y++, 2, w, CONSOLE_DIM,
-		    "  session   subject      protocol         started (UTC)      status       trials");
-	int rows = LINES - 3 - y;
+		    "  session   subject      protocol       started (UTC)    status      trials");
+	/* Under the list: the chosen session's notes (the last ones that fit), or the note being
+	 * typed. */
+	int note_rows = s->note.editing ? 3 : s->nnotes ? (int)(s->nnotes < 3 ? s->nnotes : 3) + 1
+							 : 0;
+	int rows = LINES - 3 - y - note_rows;
 	if (rows < 1)
 		return;
 	if (s->sel < s->top)
 		s->top = s->sel;
 	if (s->sel >= s->top + (size_t)rows)
 		s->top = s->sel - (size_t)rows + 1;
-	for (size_t i = s->top; i < s->n && y < LINES - 3; i++, y++) {
+	for (size_t i = s->top; i < s->n && y < LINES - 3 - note_rows; i++, y++) {
 		const struct store_session *ss = row(s, i);
 		char started[20] = "";
 		if (ss->started_utc) {
@@ -94,25 +142,114 @@ static void sessions_draw(struct console *c, void *st)
 		enum console_role role = i == s->sel ? CONSOLE_PICK
 				       : ss->status == STORE_INTERRUPTED ? CONSOLE_WARN
 				       : ss->status == STORE_ABORTED ? CONSOLE_WARN : CONSOLE_PLAIN;
-		console_putf(c, y, 2, w, role, "%s %.8s  %-12.12s %-16.16s %-18s %-12s %6zu",
+		console_putf(c, y, 2, w, role, "%s %.8s  %-12.12s %-14.14s %-16s %-11s %6zu",
 			     i == s->sel ? ">" : " ", ss->id, ss->subject ? ss->subject : "",
 			     ss->protocol_name ? ss->protocol_name : "", started,
 			     store_status_name(ss->status), ss->ntrials);
 	}
+	y = LINES - 3 - note_rows;
+	if (s->note.editing) {
+		console_putf(c, y++, 2, w, CONSOLE_HEAD, "Note on session %.8s (Enter stores it, Esc "
+			     "drops it)", row(s, s->sel)->id);
+		console_field_draw(c, &s->note, y, 4, w - 2, true);
+		return;
+	}
+	if (!s->nnotes)
+		return;
+	console_putf(c, y++, 2, w, CONSOLE_HEAD, "Notes on %.8s (%zu)", row(s, s->sel)->id,
+		     s->nnotes);
+	for (size_t i = s->nnotes > 3 ? s->nnotes - 3 : 0; i < s->nnotes; i++)
+		console_put(c, y++, 4, w - 2, CONSOLE_PLAIN, s->notes[i]);
+}
+
+static void add_note(struct console *c, struct sessions *s)
+{
+	struct store *db = NULL;
+	char *err = NULL;
+	const char *id = row(s, s->sel)->id;
+	if (store_open_existing(console_options(c)->db_path, &db, &err) == 0 &&
+	    store_event(db, id, "note", s->note.text, &err) == 0)
+		console_say(c, CONSOLE_OK, "note stored with session %.8s", id);
+	else
+		console_say(c, CONSOLE_BAD, "the note was not stored: %s", err ? err : "unknown error");
+	store_close(db);
+	free(err);
+	load_notes(c, s, true);
+}
+
+static void answer_delete(struct console *c, void *ud, bool yes)
+{
+	struct sessions *s = ud;
+	if (!yes || !s->n)
+		return;
+	char id[37];
+	snprintf(id, sizeof id, "%s", row(s, s->sel)->id);
+	struct store *db = NULL;
+	char *err = NULL;
+	if (store_open_existing(console_options(c)->db_path, &db, &err) == 0 &&
+	    store_session_delete_empty(db, id, &err) == 0)
+		console_say(c, CONSOLE_OK, "session %.8s deleted", id);
+	else
+		console_say(c, CONSOLE_BAD, "not deleted: %s", err ? err : "unknown error");
+	store_close(db);
+	free(err);
+	load(c, s);
+	load_notes(c, s, true);
 }
 
 static bool sessions_key(struct console *c, void *st, int ch)
 {
 	struct sessions *s = st;
+	struct console_screen *me = console_top(c);
+	if (s->note.editing) {
+		enum console_field_result r = console_field_key(&s->note, ch);
+		if (r != CONSOLE_FIELD_GOING) {
+			me->editing = false;
+			if (r == CONSOLE_FIELD_DONE && s->n)
+				add_note(c, s);
+		}
+		return true;
+	}
 	switch (ch) {
 	case KEY_UP:
 		if (s->sel)
 			s->sel--;
+		load_notes(c, s, false);
 		return true;
 	case KEY_DOWN:
 		if (s->sel + 1 < s->n)
 			s->sel++;
+		load_notes(c, s, false);
 		return true;
+	case 'n':
+	case 'N':
+		if (!s->n)
+			return true;
+		console_field_set(&s->note, "");
+		console_field_begin(&s->note);
+		me->editing = true;
+		return true;
+	case 'd':
+	case 'D': {
+		if (!s->n)
+			return true;
+		const struct store_session *ss = row(s, s->sel);
+		if (ss->ntrials) {
+			console_say(c, CONSOLE_WARN, "session %.8s holds %zu trial%s; only a session "
+				    "without trials can be deleted", ss->id, ss->ntrials,
+				    ss->ntrials == 1 ? "" : "s");
+			return true;
+		}
+		if (ss->status == STORE_RUNNING) {
+			console_say(c, CONSOLE_WARN, "session %.8s is running; end it first", ss->id);
+			return true;
+		}
+		char q[160];
+		snprintf(q, sizeof q, "Delete session %.8s (subject %s, no trials) and its notes?",
+			 ss->id, ss->subject ? ss->subject : "");
+		console_confirm(c, q, answer_delete, s);
+		return true;
+	}
 	case '\n':
 	case '\r':
 	case KEY_ENTER:
@@ -142,11 +279,6 @@ static bool sessions_key(struct console *c, void *st, int ch)
 		if (s->n)
 			console_export_push(c, row(s, s->sel)->id);
 		return true;
-	case 'q':
-	case 'Q':
-	case 27:
-		console_pop(c);
-		return true;
 	default:
 		return false;
 	}
@@ -156,9 +288,10 @@ static bool sessions_key(struct console *c, void *st, int ch)
 static bool sessions_tick(struct console *c, void *st)
 {
 	struct sessions *s = st;
-	if (++s->ticks % 20)   /* about every two seconds */
+	if (s->note.editing || ++s->ticks % 20)   /* about every two seconds */
 		return false;
 	load(c, s);
+	load_notes(c, s, true);
 	return true;
 }
 
@@ -166,13 +299,16 @@ static void sessions_destroy(void *st)
 {
 	struct sessions *s = st;
 	store_sessions_free(s->v, s->n);
+	free_notes(s);
 	free(s);
 }
 
 void console_sessions_push(struct console *c)
 {
 	struct sessions *s = xcalloc(1, sizeof *s);
+	console_field_init(&s->note, "note", CONSOLE_TEXT, 190, "");
 	load(c, s);
+	load_notes(c, s, true);
 	struct console_screen scr = {
 		.title = "sessions",
 		.keys = sessions_keys,

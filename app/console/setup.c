@@ -16,6 +16,7 @@
 #include <string.h>
 
 #include "diag.h"
+#include "estimate.h"
 #include "geom.h"
 #include "observer.h"
 #include "inputs.h"
@@ -41,16 +42,18 @@ struct setup {
 	int nerrors, nwarnings;
 	int scroll;
 	double size_deg;                     /* the protocol's stimulus size, for the rig editor */
+	char *stored_rig;                    /* resume: the rig text stored with the session */
+	struct console_draft *draft;         /* new session: where the form is kept when left */
+	bool opened;                         /* a session was opened from this form */
 };
 
 static const struct console_key setup_keys[] = {
-	{"Up/Down", "move"},
-	{"Enter", "edit"},
-	{"Left/Right", "choose"},
-	{"g", "go: open the session"},
-	{"e", "edit rig"},
+	{"g", "go"},
 	{"p", "problems"},
-	{"Esc", "back"},
+	{"e", "edit rig"},
+	{"Enter", "edit"},
+	{"Up/Down", "move"},
+	{"Left/Right", "choose"},
 };
 
 static const char *const display_names[CONSOLE_DISPLAY_COUNT] = {
@@ -72,7 +75,14 @@ static bool row_shown(const struct setup *s, int row)
 
 static bool row_locked(const struct setup *s, int row)
 {
-	return s->resume_id[0] && (row == ROW_PROTOCOL || row == ROW_SUBJECT || row == ROW_SEED);
+	return s->resume_id[0] && (row == ROW_PROTOCOL || row == ROW_SUBJECT || row == ROW_SEED ||
+				   row == ROW_RIG);
+}
+
+static bool have_display(void)
+{
+	const char *disp = getenv("DISPLAY"), *way = getenv("WAYLAND_DISPLAY");
+	return (disp && *disp) || (way && *way);
 }
 
 /* A seed nobody has to think of: 9 digits from /dev/urandom (never the clock). */
@@ -125,6 +135,7 @@ static void run_check(struct setup *s)
 	struct inputs_options io = {
 		.protocol_path = s->f[ROW_PROTOCOL].len ? s->f[ROW_PROTOCOL].text : NULL,
 		.rig_path = s->f[ROW_RIG].len ? s->f[ROW_RIG].text : NULL,
+		.rig_text = s->stored_rig,
 		.seed = strtoull(s->f[ROW_SEED].text, NULL, 10),
 	};
 	struct inputs in;
@@ -146,12 +157,13 @@ static void run_check(struct setup *s)
 			 p->size_deg, px, deg_actual);
 	}
 	if (in.have_plan) {
+		char dur[32];
 		snprintf(s->plan_line, sizeof s->plan_line,
-			 "%zu block%s, %zu trials, about %.0f min; %zu choices; list of %zu images",
+			 "%zu block%s, %zu trials, about %s; %zu categories; %zu images",
 			 pl->nblocks, pl->nblocks == 1 ? "" : "s", pl->ntrials,
-			 pl->est_seconds / 60.0 + 0.5, p->nchoices, in.list.n);
+			 estimate_format(pl->est_seconds, dur, sizeof dur), p->nchoices, in.list.n);
 		snprintf(s->epoch_line, sizeof s->epoch_line,
-			 "stimulus %d frames (%.1f ms), fixation %d (%.0f ms), mask %d (%.0f ms)",
+			 "frames: stimulus %d = %.1f ms, fixation %d = %.0f ms, mask %d = %.0f ms",
 			 pl->epoch_frames[EPOCH_STIMULUS], pl->epoch_actual_ms[EPOCH_STIMULUS],
 			 pl->epoch_frames[EPOCH_FIXATION], pl->epoch_actual_ms[EPOCH_FIXATION],
 			 pl->epoch_frames[EPOCH_MASK], pl->epoch_actual_ms[EPOCH_MASK]);
@@ -215,7 +227,8 @@ static void setup_draw(struct console *c, void *st)
 					 console_options(c)->protocols_dir);
 				hint = buf;
 			} else if (row == ROW_RIG && s->rig_line[0]) {
-				snprintf(buf, sizeof buf, "%s  (e edits)", s->rig_line);
+				snprintf(buf, sizeof buf, "%s%s", s->rig_line,
+					 s->stored_rig ? "" : "  (e edits)");
 				hint = buf;
 			} else if (row == ROW_SUBJECT) {
 				hint = "letters and digits only; never a name or initials";
@@ -236,16 +249,21 @@ static void setup_draw(struct console *c, void *st)
 		console_put(c, y, vx, w, CONSOLE_DIM, "choose a protocol to check it");
 		return;
 	}
-	if (s->usable)
-		console_putf(c, y, vx, w, CONSOLE_OK, "ready: %s", s->plan_line);
-	else
-		console_putf(c, y, vx, w, CONSOLE_BAD, "%d problem%s to fix before a session can start",
-			     s->nerrors, s->nerrors == 1 ? "" : "s");
-	y++;
+	if (s->usable) {
+		char ready[260];
+		snprintf(ready, sizeof ready, "ready: %s", s->plan_line);
+		y += console_wrap(c, y, vx, w, 2, CONSOLE_OK, ready);
+	} else {
+		console_putf(c, y++, vx, w, CONSOLE_BAD, "%d problem%s to fix before a session can "
+			     "start", s->nerrors, s->nerrors == 1 ? "" : "s");
+	}
+	if (s->nwarnings && y <= bottom)
+		console_putf(c, y++, vx, w, CONSOLE_WARN, "%d warning%s: p lists %s", s->nwarnings,
+			     s->nwarnings == 1 ? "" : "s", s->nwarnings == 1 ? "it" : "them");
 	if (s->geom_line[0] && y <= bottom)
 		console_put(c, y++, vx, w, CONSOLE_PLAIN, s->geom_line);
 	if (s->usable && y <= bottom)
-		console_put(c, y++, vx, w, CONSOLE_DIM, s->epoch_line);
+		y += console_wrap(c, y, vx, w, bottom - y + 1, CONSOLE_DIM, s->epoch_line);
 	char line[1024];
 	int shown = 0;
 	for (size_t i = (size_t)s->scroll; i < s->diags.n && y <= bottom; i++, shown++) {
@@ -295,7 +313,7 @@ static void make_options(struct console *c, struct setup *s, struct run_options 
 	o->protocol_path = s->f[ROW_PROTOCOL].text;
 	o->subject = s->f[ROW_SUBJECT].text;
 	o->db_path = console_options(c)->db_path;
-	o->rig_path = s->f[ROW_RIG].text;
+	o->rig_path = s->stored_rig ? NULL : s->f[ROW_RIG].text;
 	o->observer = s->model ? s->f[ROW_MODEL].text : "keyboard";
 	o->headless = s->display == CONSOLE_HEADLESS_PACED || s->display == CONSOLE_HEADLESS_FAST;
 	o->pace = s->display == CONSOLE_HEADLESS_PACED;
@@ -309,7 +327,7 @@ static void make_options(struct console *c, struct setup *s, struct run_options 
 static bool form_ready(struct console *c, struct setup *s)
 {
 	for (int row = 0; row < ROW_COUNT; row++) {
-		if (!row_is_field(row) || !row_shown(s, row))
+		if (!row_is_field(row) || !row_shown(s, row) || (row == ROW_RIG && s->stored_rig))
 			continue;
 		struct console_field *f = &s->f[row];
 		if (console_field_check(f, f->text, f->msg, sizeof f->msg) != 0) {
@@ -339,6 +357,12 @@ static void open_session(struct console *c, struct setup *s)
 {
 	if (!form_ready(c, s))
 		return;
+	if ((s->display == CONSOLE_FULLSCREEN || s->display == CONSOLE_WINDOW) && !have_display()) {
+		s->row = ROW_DISPLAY;
+		console_say(c, CONSOLE_BAD, "no display here to show stimuli on: choose a headless "
+			    "display (Left/Right) for simulated timing");
+		return;
+	}
 	struct console_pres *old = console_presenter(c);
 	if (old && console_pres_alive(old)) {
 		console_say(c, CONSOLE_WARN, "a session is still open; close it from its blocks screen");
@@ -353,6 +377,7 @@ static void open_session(struct console *c, struct setup *s)
 		return;
 	}
 	console_set_presenter(c, p);
+	s->opened = true;
 	console_blocks_push(c);
 }
 
@@ -449,21 +474,38 @@ static bool setup_key(struct console *c, void *st, int ch)
 		return true;
 	case 'e':
 	case 'E':
+		if (s->stored_rig) {
+			console_say(c, CONSOLE_WARN, "a resumed session keeps the rig stored with it");
+			return true;
+		}
 		console_rig_push(c, s->f[ROW_RIG].text, s->size_deg, rig_saved, s);
-		return true;
-	case 27:
-	case 'q':
-	case 'Q':
-		console_pop(c);
 		return true;
 	default:
 		return false;
 	}
 }
 
+/* Keeps the form of a new session for the next visit (console_draft). */
+static void keep_draft(struct setup *s)
+{
+	struct console_draft *d = s->draft;
+	if (!d)
+		return;
+	d->set = true;
+	snprintf(d->protocol, sizeof d->protocol, "%s", s->f[ROW_PROTOCOL].text);
+	snprintf(d->subject, sizeof d->subject, "%s", s->opened ? "" : s->f[ROW_SUBJECT].text);
+	snprintf(d->rig, sizeof d->rig, "%s", s->f[ROW_RIG].text);
+	snprintf(d->seed, sizeof d->seed, "%s", s->opened ? "" : s->f[ROW_SEED].text);
+	snprintf(d->model, sizeof d->model, "%s", s->f[ROW_MODEL].text);
+	d->display = (int)s->display;
+	d->model_on = s->model;
+}
+
 static void setup_destroy(void *st)
 {
 	struct setup *s = st;
+	keep_draft(s);
+	free(s->stored_rig);
 	for (size_t i = 0; i < s->nfound; i++)
 		free(s->found[i]);
 	free(s->found);
@@ -488,11 +530,24 @@ void console_setup_push(struct console *c, const char *resume_id)
 	s->f[ROW_SEED].max = 1e19;
 	console_field_init(&s->f[ROW_MODEL], "model observer", CONSOLE_TEXT, 200,
 			   "model:shape=weibull,threshold=18,slope=-3,lapse=0.02,rt=550,seed=7");
-	const char *disp = getenv("DISPLAY"), *way = getenv("WAYLAND_DISPLAY");
-	bool have_display = (disp && *disp) || (way && *way);
-	s->display = have_display ? CONSOLE_FULLSCREEN : CONSOLE_HEADLESS_PACED;
-	s->model = !have_display;
+	s->display = have_display() ? CONSOLE_FULLSCREEN : CONSOLE_HEADLESS_PACED;
+	s->model = !have_display();
 	s->row = ROW_SUBJECT;
+	const struct console_draft *dr = console_draft(c);
+	if (!resume_id) {
+		s->draft = console_draft(c);
+		if (dr->set) {
+			console_field_set(&s->f[ROW_PROTOCOL], dr->protocol);
+			console_field_set(&s->f[ROW_SUBJECT], dr->subject);
+			console_field_set(&s->f[ROW_RIG], dr->rig);
+			if (dr->seed[0])
+				console_field_set(&s->f[ROW_SEED], dr->seed);
+			console_field_set(&s->f[ROW_MODEL], dr->model);
+			if (dr->display >= 0 && dr->display < CONSOLE_DISPLAY_COUNT)
+				s->display = (enum console_display)dr->display;
+			s->model = dr->model_on;
+		}
+	}
 	if (resume_id) {
 		struct store *db = NULL;
 		char *err = NULL;
@@ -511,7 +566,13 @@ void console_setup_push(struct console *c, const char *resume_id)
 			} else {
 				s->model = false;
 			}
-			s->row = ROW_RIG;
+			if (ss.rig_text) {
+				s->stored_rig = xstrdup(ss.rig_text);
+				char label[80];
+				snprintf(label, sizeof label, "(stored with session %.8s)", ss.id);
+				console_field_set(&s->f[ROW_RIG], label);
+			}
+			s->row = ROW_DISPLAY;
 		} else {
 			console_say(c, CONSOLE_BAD, "cannot read session %s: %s", resume_id,
 				    err ? err : "unknown error");

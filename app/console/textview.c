@@ -16,7 +16,6 @@ struct textview {
 static const struct console_key text_keys[] = {
 	{"Up/Down", "scroll"},
 	{"PgUp/PgDn", "page"},
-	{"q", "back"},
 };
 
 static void text_draw(struct console *c, void *st)
@@ -32,6 +31,7 @@ static void text_draw(struct console *c, void *st)
 
 static bool text_key(struct console *c, void *st, int ch)
 {
+	(void)c;
 	struct textview *t = st;
 	size_t rows = (size_t)console_body_rows();
 	size_t max = t->n > rows ? t->n - rows : 0;
@@ -49,11 +49,6 @@ static bool text_key(struct console *c, void *st, int ch)
 		return true;
 	case KEY_NPAGE:
 		t->top = t->top + rows < max ? t->top + rows : max;
-		return true;
-	case 'q':
-	case 'Q':
-	case 27:
-		console_pop(c);
 		return true;
 	default:
 		return false;

@@ -15,7 +15,6 @@
 static const struct console_key welcome_keys[] = {
 	{"Enter", "set up a session"},
 	{"s", "stored sessions"},
-	{"q", "leave"},
 };
 
 static const struct {
@@ -78,6 +77,22 @@ static void read_db(struct console *c, struct welcome *w)
 	free(err);
 }
 
+/* VALUE at column 12 of row Y and NOTE after it, or on the next row when both do not fit.
+ * Returns the row after them. */
+static int value_and_note(struct console *c, int y, const char *value, enum console_role role,
+			  const char *note)
+{
+	int x = 12 + console_put(c, y, 12, COLS - 14, CONSOLE_PLAIN, value);
+	if (!*note)
+		return y + 1;
+	if (x + 2 + (int)strlen(note) > COLS - 1) {
+		y++;
+		x = 10;
+	}
+	console_put(c, y, x + 2, COLS - x - 3, role, note);
+	return y + 1;
+}
+
 static void welcome_draw(struct console *c, void *st)
 {
 	struct welcome *wl = st;
@@ -92,15 +107,12 @@ static void welcome_draw(struct console *c, void *st)
 	}
 	y++;
 	console_put(c, y, 2, 10, CONSOLE_DIM, "Database");
-	int x = 12 + console_put(c, y, 12, w - 10, CONSOLE_PLAIN, o->db_path);
-	console_put(c, y++, x + 2, COLS - x - 3, wl->db_role, wl->db_note);
+	y = value_and_note(c, y, o->db_path, wl->db_role, wl->db_note);
 	console_put(c, y, 2, 10, CONSOLE_DIM, "Rig");
-	x = 12 + console_put(c, y, 12, w - 10, CONSOLE_PLAIN,
-			     o->rig_path ? o->rig_path : "(none found)");
-	if (o->rig_is_fallback)
-		console_put(c, y, x + 2, COLS - x - 3, CONSOLE_WARN,
-			    "demo rig: describe your own display before real sessions");
-	y += 2;
+	y = value_and_note(c, y, o->rig_path ? o->rig_path : "(none found)", CONSOLE_WARN,
+			   o->rig_is_fallback ? "demo rig: describe your own display before real "
+						"sessions" : "");
+	y++;
 	console_put(c, y, 2, w, CONSOLE_OK, "Press Enter when you have read this to set up a session.");
 }
 
@@ -112,6 +124,13 @@ static bool welcome_tick(struct console *c, void *st)
 		return false;
 	read_db(c, w);
 	return true;
+}
+
+static void answer_leave(struct console *c, void *ud, bool yes)
+{
+	(void)ud;
+	if (yes)
+		console_quit(c);
 }
 
 static bool welcome_key(struct console *c, void *st, int ch)
@@ -129,8 +148,13 @@ static bool welcome_key(struct console *c, void *st, int ch)
 		return true;
 	case 'q':
 	case 'Q':
-		console_quit(c);
-		return true;
+	case 27:
+		if (console_pres_alive(console_presenter(c))) {
+			console_confirm(c, "A session is still open. Leave the console and close it? "
+					   "Every stored trial is kept.", answer_leave, NULL);
+			return true;
+		}
+		return false;   /* the framework's back key: leaving the first screen quits */
 	default:
 		return false;
 	}

@@ -20,6 +20,7 @@
 #include <gsl/gsl_rng.h>
 
 #include "adapt.h"
+#include "estimate.h"
 #include "frames.h"
 #include "geom.h"
 #include "protocol.h"
@@ -27,11 +28,6 @@
 #include "sha256.h"
 #include "stimlist.h"
 
-/* Assumed response time when the response window is unlimited or longer (common practice, no
- * source: typical choice RTs for brief images are 400-800 ms). */
-#define PLAN_ASSUMED_RT_MS 600.0
-/* Flips spent measuring the refresh before each block (the presenter's minimum). */
-#define PLAN_MEASURE_FLIPS 120
 
 static int level_equal(double a, double b)
 {
@@ -286,26 +282,19 @@ static void timing(const struct protocol *p, const struct rig *r, struct plan *p
 	}
 }
 
-static double estimate_seconds(const struct protocol *p, const struct rig *r,
-			       const struct plan *pl)
+/* Each block's planned length (estimate.h) and the session's, their sum. */
+static double estimate_seconds(const struct protocol *p, const struct rig *r, struct plan *pl)
 {
 	double total = 0;
 	for (size_t b = 0; b < pl->nblocks; b++) {
-		const struct protocol_block *pb = &p->blocks[pl->blocks[b].proto_block];
-		double ms = 0;
-		for (int e = 0; e < EPOCH_COUNT; e++) {
-			if (e == EPOCH_RESPONSE)
-				continue;
-			if (e == EPOCH_FEEDBACK && !pb->feedback)
-				continue;
-			ms += pl->epoch_actual_ms[e];
-		}
-		double resp = pl->epoch_actual_ms[EPOCH_RESPONSE];
-		ms += resp > 0 && resp < PLAN_ASSUMED_RT_MS ? resp : PLAN_ASSUMED_RT_MS;
-		total += ms * (double)pl->blocks[b].ntrials;
-		total += PLAN_MEASURE_FLIPS * 1000.0 / r->refresh_hz;
+		struct plan_block *blk = &pl->blocks[b];
+		const struct protocol_block *pb = &p->blocks[blk->proto_block];
+		blk->trial_seconds = estimate_trial_seconds(pl->epoch_actual_ms, pb->feedback);
+		blk->est_seconds = estimate_block_seconds(blk->trial_seconds, blk->ntrials,
+							  r->refresh_hz);
+		total += blk->est_seconds;
 	}
-	return total / 1000.0;
+	return total;
 }
 
 static void hash_plan(const struct stimlist *l, struct plan *pl)

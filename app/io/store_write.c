@@ -537,3 +537,37 @@ fail:
 	s->meta_done[0] = '\0';
 	return -1;
 }
+
+int store_session_delete_empty(struct store *s, const char *session_id, char **err)
+{
+	/* One statement, so no trial can arrive between the test and the delete; events go with
+	 * the session (ON DELETE CASCADE). */
+	sqlite3_stmt *st = store_prep(s, "DELETE FROM sessions WHERE id = ?1 AND status <> 'running'"
+				      " AND NOT EXISTS (SELECT 1 FROM trials WHERE session_id = ?1)",
+				      err, "deleting the session");
+	if (!st)
+		return -1;
+	store_bind_text(st, 1, session_id);
+	int rc = sqlite3_step(st);
+	sqlite3_finalize(st);
+	if (rc != SQLITE_DONE)
+		return store_db_fail(s, err, "deleting the session");
+	if (sqlite3_changes(s->db) == 1)
+		return 0;
+	/* Nothing deleted: say why. */
+	st = store_prep(s, "SELECT status, (SELECT count(*) FROM trials WHERE session_id = ?1)"
+			" FROM sessions WHERE id = ?1", err, "reading the session");
+	if (!st)
+		return -1;
+	store_bind_text(st, 1, session_id);
+	if (sqlite3_step(st) != SQLITE_ROW)
+		store_set_err(err, "%s: no session %s", s->path, session_id);
+	else if (sqlite3_column_int64(st, 1) > 0)
+		store_set_err(err, "session %.8s holds %lld trial%s; only a session without trials "
+			      "can be deleted", session_id, (long long)sqlite3_column_int64(st, 1),
+			      sqlite3_column_int64(st, 1) == 1 ? "" : "s");
+	else
+		store_set_err(err, "session %.8s is running; end it first", session_id);
+	sqlite3_finalize(st);
+	return -1;
+}

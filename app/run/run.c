@@ -551,14 +551,6 @@ int run_measure_refresh(struct run_session *s, struct run_refresh *out, char **e
 
 /* ---- blocks ---- */
 
-double run_trial_seconds(const struct run_session *s)
-{
-	double ms = 0;
-	for (int e = 0; e < EPOCH_COUNT; e++)
-		ms += e == EPOCH_RESPONSE && s->plan.epoch_frames[e] == 0 ? 600.0 : s->plan.epoch_actual_ms[e];
-	return ms / 1000.0;
-}
-
 int run_block_info(const struct run_session *s, size_t i, struct run_block_info *out)
 {
 	if (i >= s->plan.nblocks)
@@ -573,7 +565,8 @@ int run_block_info(const struct run_session *s, size_t i, struct run_block_info 
 		out->stored += s->stored[b->first + k];
 	out->practice = pb->practice;
 	out->adaptive = pb->adaptive != NULL;
-	out->est_seconds = run_trial_seconds(s) * (double)b->ntrials;
+	out->trial_seconds = b->trial_seconds;
+	out->est_seconds = b->est_seconds;
 	out->runs = s->runs[i];
 	return 0;
 }

@@ -20,6 +20,7 @@
 #include <gsl/gsl_statistics_double.h>
 
 #include "dclock.h"
+#include "estimate.h"
 #include "preload.h"
 #include "trialloop.h"
 
@@ -78,7 +79,8 @@ static void fill_snapshot(struct blockrun *br, struct run_snapshot *sn)
 		sn->session_done += s->stored[k];
 	sn->session_total = s->plan.ntrials;
 	sn->elapsed_s = (double)(dclock_monotonic_ns() - br->t0) / 1e9;
-	double per = br->sum.trials ? sn->elapsed_s / (double)br->sum.trials : run_trial_seconds(s);
+	double per = estimate_per_trial(s->plan.blocks[br->block].trial_seconds, sn->elapsed_s,
+					br->sum.trials);
 	sn->remaining_s = per * (double)(br->total - br->sum.trials);
 	sn->answered = br->sum.answered;
 	sn->correct = br->sum.correct;

@@ -92,8 +92,6 @@ static inline const struct protocol_block *run_pblock(const struct run_session *
 }
 
 /* run.c */
-/* Estimated seconds of one trial (a response window without a limit counts 600 ms). */
-double run_trial_seconds(const struct run_session *s);
 /* Repeats still owed in block B (resume). */
 size_t run_pending_in(const struct run_session *s, size_t b);
 /* Drops the owed repeat of session trial TRIAL (it has been stored). */

@@ -18,7 +18,8 @@ expect_screen "caution: pseudonymous IDs" "Subject IDs are letters and digits on
 expect_screen "database in use is shown" "Database  $DB"
 expect_screen "rig in use is shown, and the fallback named" "demo rig: describe your own display"
 expect_screen "the way in" "Press Enter when you have read this"
-expect_screen "key line lists the screen's keys" "Enter set up a session  s stored sessions  q leave"
+expect_screen "key line lists the screen's keys" "Enter set up a session  s stored sessions"
+expect_screen "key line ends with the back key: Esc leaves the first screen" "Esc leave  ? help"
 expect_screen "key line ends with help" "? help"
 
 tm_keys "?"
@@ -36,7 +37,9 @@ expect_screen "back to 100x30: the screen returns" "Before anyone sits down"
 $TM resize-window -t 0 -x 80 -y 24
 expect_screen "80x24 fits the first screen" "Press Enter when you have read this"
 expect_no_screen "80x24 is not called too small" "too small"
-expect_screen "80x24 still shows the key line" "q leave"
+expect_screen "80x24 still shows the key line" "Esc leave"
+expect_screen "80x24: the database note is not cut" "(a new file; made when the first session starts)"
+expect_screen "80x24: the rig note is not cut" "demo rig: describe your own display before real sessions"
 
 # Colour: present by default, absent under NO_COLOR (no-color.org). Colour SGR codes are 30-37 and
 # 40-47 (ECMA-48 section 8.3.117); capture-pane -e keeps them.

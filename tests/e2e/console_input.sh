@@ -81,7 +81,7 @@ tm_keys Escape
 tm_keys e
 expect_screen "e opens the rig editor" "The observer's display"
 expect_screen "rig editor: pixels per degree" "px per degree at the centre of the screen"
-tm_keys Down Down Down Down Enter C-u
+tm_keys Down Down Down Down Down Enter C-u
 tm_type "5a"
 expect_screen "rig editor: a letter in a number is refused" "'a' is not allowed: a number such as 57 or 57.5"
 tm_keys C-u
@@ -92,7 +92,7 @@ tm_keys C-u
 tm_type "114"
 tm_keys Enter
 expect_screen "rig editor: the stimulus in pixels follows the distance" "the protocol's stimulus of 1.75 deg is"
-tm_keys Down Down Enter C-u
+tm_keys Down Down Down Down Down Enter C-u
 tm_type "$WORK/no/such/rig.ini"
 tm_keys Enter
 expect_screen "rig editor: saving into a folder that does not exist" "no such folder: $WORK/no/such"

@@ -65,9 +65,9 @@ expect_screen "observer: the model (no display here)" "model observer (simulated
 expect_screen "the model's spec is shown" "$SPEC"
 tm_keys g
 expect_screen "blocks screen opens with the session" "Session "
-expect_screen "blocks: the practice block is marked" "warmup                      6"
+expect_screen "blocks: the practice block is marked" "warmup                  6"
 expect_screen "blocks: practice kind" "practice   not run"
-expect_screen "blocks: the main block and its trial count" "main                       24"
+expect_screen "blocks: the main block and its trial count" "main                   24"
 tm_keys Enter
 expect_screen "block 1 runs and reports" 'Block "warmup" done: 6 trials'
 tm_keys Enter
