@@ -6,7 +6,7 @@ BUILD    ?= build
 CC       ?= cc
 CFLAGS   ?= -O2 -g
 WARN     := -std=c11 -Wall -Wextra -Wpedantic -Werror
-PKGS     := sdl2 SDL2_image SDL2_ttf fontconfig libevdev libpq sqlite3 inih libcjson gsl ncursesw
+PKGS     := sdl2 SDL2_image SDL2_ttf fontconfig libevdev libpq libpng sqlite3 inih libcjson gsl ncursesw
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
 PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lSDL2_test -lcsv -lm
 CPPFLAGS += -Iinclude -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE
@@ -28,7 +28,7 @@ DEB_PKGS := gcc make pkg-config libncurses-dev libsdl2-dev libsdl2-image-dev lib
             r-base-core r-cran-psyphy python3-numpy python3-scipy python3-statsmodels \
             clang libclang-rt-14-dev librsvg2-bin sqlite3 tmux libxml2-utils time \
             libsdl2-ttf-dev libfontconfig-dev fonts-dejavu-core libevdev-dev libpq-dev \
-            postgresql mandoc
+            postgresql mandoc libpng-dev
 
 .PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets
 all: $(BUILD)/tachist
