@@ -207,7 +207,7 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 	       geom_px_per_deg(r));
 	printf("stimulus  %g deg -> %d px = %.3f deg\n", p->size_deg, pl->stim_px,
 	       pl->stim_deg_actual);
-	printf("choices  ");
+	printf("categories");
 	for (size_t i = 0; i < p->nchoices; i++)
 		printf(" %s=%s", p->choices[i].category, p->choices[i].key);
 	printf("\n\n%-10s %9s %7s %10s\n", "epoch", "ms", "frames", "actual ms");
@@ -218,8 +218,8 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 			printf("%-10s %9g %7d %10.1f\n", epoch_name((enum epoch)e), p->epoch_ms[e],
 			       pl->epoch_frames[e], pl->epoch_actual_ms[e]);
 	}
-	printf("\n%-3s %-16s %7s %-8s %-7s %7s %-8s %s\n", "#", "block", "trials", "practice",
-	       "order", "max_run", "feedback", "conditions");
+	printf("\n%-3s %-16s %7s %-8s %-7s %14s %-8s %s\n", "#", "block", "trials", "practice",
+	       "order", "longest_streak", "feedback", "conditions");
 	for (size_t b = 0; b < pl->nblocks; b++) {
 		const struct protocol_block *pb = &p->blocks[pl->blocks[b].proto_block];
 		size_t nl, nc;
@@ -237,9 +237,9 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 		else
 			snprintf(cond, sizeof cond, "%zu level%s x %zu categor%s = %zu", nl ? nl : 1,
 				 nl == 1 || !nl ? "" : "s", nc, nc == 1 ? "y" : "ies", (nl ? nl : 1) * nc);
-		printf("%-3zu %-16s %7zu %-8s %-7s %7d %-8s %s\n", b + 1, pb->name,
+		printf("%-3zu %-16s %7zu %-8s %-7s %14d %-8s %s\n", b + 1, pb->name,
 		       pl->blocks[b].ntrials, pb->practice ? "yes" : "no",
-		       pb->order == ORDER_RANDOM ? "random" : "fixed", pb->max_run,
+		       pb->order == ORDER_RANDOM ? "random" : "fixed", pb->longest_streak,
 		       pb->feedback ? "yes" : "no", cond);
 	}
 	long secs = lround(pl->est_seconds);
@@ -286,7 +286,7 @@ static cJSON *json_doc(const struct protocol *p, const struct rig *r, const stru
 	cJSON_AddNumberToObject(sj, "size_deg", p->size_deg);
 	cJSON_AddNumberToObject(sj, "pixels", pl->stim_px);
 	cJSON_AddNumberToObject(sj, "degrees_actual", pl->stim_deg_actual);
-	cJSON *ch = cJSON_AddArrayToObject(j, "choices");
+	cJSON *ch = cJSON_AddArrayToObject(j, "categories");
 	for (size_t i = 0; i < p->nchoices; i++) {
 		cJSON *o = cJSON_CreateObject();
 		cJSON_AddStringToObject(o, "category", p->choices[i].category);
@@ -312,7 +312,7 @@ static cJSON *json_doc(const struct protocol *p, const struct rig *r, const stru
 		cJSON_AddNumberToObject(o, "trials", (double)pl->blocks[b].ntrials);
 		cJSON_AddBoolToObject(o, "practice", pb->practice);
 		cJSON_AddStringToObject(o, "order", pb->order == ORDER_RANDOM ? "random" : "fixed");
-		cJSON_AddNumberToObject(o, "max_run", pb->max_run);
+		cJSON_AddNumberToObject(o, "longest_streak", pb->longest_streak);
 		cJSON_AddBoolToObject(o, "feedback", pb->feedback);
 		cJSON_AddBoolToObject(o, "repeat_faults", pb->repeat_faults);
 		if (pb->adaptive)
