@@ -231,3 +231,59 @@ expect_exit "controls --budget level with an unreachable level" 1 "$TACHIST" sti
 expect_exit "controls without --out is a usage error" 2 "$TACHIST" stimuli controls "$SET/list.csv"
 expect_exit "an unknown action is a usage error" 2 "$TACHIST" stimuli frob
 expect_exit "audit of a missing list exits 1" 1 "$TACHIST" stimuli audit "$WORK/none.csv"
+
+# --- controls of grey images stay grey and keep the audit's L2 ------------------------------
+# A grey source and grey perturbed versions: the controls must be grey PNGs (one stored channel),
+# their L2 over that one channel within 1% of the budget, l2_achieved equal to numpy's L2 of the
+# written file, and the audit's L2 of each control equal to l2_achieved (the audit compares grey
+# with grey over one channel; a control stored as RGB would be compared over three and come out
+# √3 larger).
+G=$WORK/grey
+$PY - "$G" "$GEN" <<'EOF2'
+import os, sys
+import numpy as np
+sys.path.insert(0, os.path.dirname(sys.argv[2])); import stimset
+root = sys.argv[1]; os.makedirs(root + "/g", exist_ok=True)
+rng = np.random.default_rng(11)
+rows = []
+for k in range(3):
+    src = stimset.clean_image(rng, 64, 48, k)[:, :, 1]
+    stimset.write_png("%s/g/s%d.png" % (root, k), src)
+    rows.append("g/s%d.png,g,0," % k)
+    for lev in (1.0, 3.0):
+        img = stimset.perturb(rng, src, lev)
+        stimset.write_png("%s/g/s%d_%d.png" % (root, k, lev), img)
+        l2, _ = stimset.norms(img, src)
+        rows.append("g/s%d_%d.png,g,%.9g,g/s%d.png" % (k, lev, l2, k))
+open(root + "/list.csv", "w").write("image,category,level,source\n" + "\n".join(rows) + "\n")
+EOF2
+expect_exit "controls of a grey set exit 0" 0 "$TACHIST" stimuli controls "$G/list.csv" --out "$WORK/gctl"
+check "grey controls: grey files, L2 over one channel within 1% of the budget (numpy)" $PY - "$WORK/gctl" "$GEN" <<'EOF2'
+import csv, os, sys
+sys.path.insert(0, os.path.dirname(sys.argv[2])); import stimset
+d = sys.argv[1]
+rows = list(csv.DictReader(open(d + "/controls.csv", newline="")))
+ctl = [r for r in rows if r["control"] == "random"]
+assert len(ctl) == 6, len(ctl)
+bad = 0
+for r in ctl:
+    c = stimset.read_png(os.path.join(d, r["image"]))
+    s = stimset.read_png(os.path.join(d, r["source"]))
+    if c.shape[2] != 1:
+        print("#", r["image"], "has", c.shape[2], "channels"); bad += 1; continue
+    l2, _ = stimset.norms(c, s)
+    budget = float(r["level"])
+    if abs(l2 - budget) > 0.01 * budget or abs(l2 - float(r["l2_achieved"])) > 1e-6:
+        print("#", r["image"], l2, budget, r["l2_achieved"]); bad += 1
+sys.exit(1 if bad else 0)
+EOF2
+expect_exit "the grey controls list audits clean (levels as declared)" 0 "$TACHIST" stimuli audit "$WORK/gctl/controls.csv" --json --rig "$WORK/rig.ini" --size-deg 1
+check "audit's L2 of every grey control equals l2_achieved" $PY - "$WORK/last.out" "$WORK/gctl/controls.csv" <<'EOF2'
+import csv, json, sys
+rows = {r["image"]: r for r in json.load(open(sys.argv[1]))["rows"]}
+ctl = [r for r in csv.DictReader(open(sys.argv[2], newline="")) if r["control"] == "random"]
+bad = [r["image"] for r in ctl if rows[r["image"]]["channels"] != 1
+       or abs(rows[r["image"]]["l2"] - float(r["l2_achieved"])) > 1e-7]   # 9 digits in the CSV
+for b in bad: print("#", b)
+sys.exit(1 if bad else 0)
+EOF2
