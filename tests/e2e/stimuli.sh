@@ -287,3 +287,64 @@ bad = [r["image"] for r in ctl if rows[r["image"]]["channels"] != 1
 for b in bad: print("#", b)
 sys.exit(1 if bad else 0)
 EOF2
+
+# --- audit groups flags of one kind ---------------------------------------------------------
+# The flagged set on the small rig at 4 deg: 44 readable rows are all scaled up; one text line
+# says so with the range of factors, --verbose lists each image under it, --json has the group
+# with its lines and keeps one entry per row in flags.
+expect_exit "grouped text audit exits 1" 1 "$TACHIST" stimuli audit "$F/list.csv" --rig "$WORK/rig.ini" --size-deg 4
+check "one line for the 44 up-scaled images, with the range of factors" grep -q "list.csv:2: upscaled: 44 images would be scaled up [0-9.]*×–[0-9.]*× to span [0-9.]* deg" "$WORK/last.out"
+expect_eq "no per-image upscaled lines without --verbose" 0 "$(grep -c "would be scaled up from" "$WORK/last.out")"
+expect_exit "grouped text audit --verbose exits 1" 1 "$TACHIST" stimuli audit "$F/list.csv" --rig "$WORK/rig.ini" --size-deg 4 --verbose
+expect_eq "--verbose lists every up-scaled image" 44 "$(grep -c "^  .*list.csv:[0-9]*: .* would be scaled up from" "$WORK/last.out")"
+check "flag_groups in JSON: the up-scaled group has 44 lines and the factor range of the rows" $PY - "$WORK/flagged.json" <<'EOF2'
+import json, sys
+a = json.load(open(sys.argv[1]))
+(g,) = [g for g in a["flag_groups"] if g["kind"] == "upscaled"]
+up = sorted(f["line"] for f in a["flags"] if f["kind"] == "upscaled")
+# the factor is stimulus px / longer side; rows are 64x48 (x2.x) except small.png (16x16)
+px = a["stimulus_px"]
+lo, hi = px / 64, px / 16
+ok = g["count"] == 44 and sorted(g["lines"]) == up and ("%.2f" % lo) in g["summary"] and ("%.2f" % hi) in g["summary"]
+print("#", g["summary"]) if not ok else None
+sys.exit(0 if ok else 1)
+EOF2
+
+# --- import --protocol: a starting protocol that check accepts unchanged ----------------------
+P=$WORK/proto
+mkdir -p "$P/set"
+cp -r "$SET/kettle" "$SET/lantern" "$SET/compass" "$P/set/"
+# labels.csv keyed by image (path under the folder); one row names no imported image.
+$PY - "$P/set" <<'EOF2'
+import os, sys
+root = sys.argv[1]
+rows = ["image,exemplar,shade"]
+for cat in sorted(os.listdir(root)):
+    for name in sorted(os.listdir(os.path.join(root, cat))):
+        rows.append("%s/%s,%s,%s" % (cat, name, name[3:5], "dark" if "l2" in name else "clean"))
+open(os.path.join(root, "labels.csv"), "w").write("\n".join(rows) + "\n")
+EOF2
+expect_exit "import --protocol exits 0" 0 "$TACHIST" stimuli import "$P/set" --out "$P/list.csv" --level-from '{source}_l2_{level}' --protocol "$P/study.ini"
+check "import says it used the labels file" grep -q "labels from .*labels.csv: 2 columns" "$WORK/last.out"
+check "the list carries the label columns" grep -q '^"image","category","level","source","exemplar","shade"' "$P/list.csv"
+check "labels are joined by image" grep -q '"set/kettle/ket01_l2_4p0.png","kettle","4","set/kettle/ket01.png","01","dark"' "$P/list.csv"
+check "the protocol names the new section and words" sh -c "grep -q '^\[categories\]' '$P/study.ini' && grep -q '^longest_streak = ' '$P/study.ini'"
+check "keys come from the default row in order" sh -c "grep -q '^compass = f' '$P/study.ini' && grep -q '^kettle = j' '$P/study.ini' && grep -q '^lantern = d' '$P/study.ini'"
+check "every key line has a comment above it" awk '/^[a-z_]+ = / && prev !~ /^;/ && sect != "[categories]" { bad = 1; print "# " $0 } /^\[/ { sect = $0 } { prev = $0 } END { exit bad }' "$P/study.ini"
+expect_exit "check accepts the written protocol unchanged" 0 "$TACHIST" check "$P/study.ini" --rig "$WORK/rig.ini"
+check "check plans both blocks" grep -q "practice" "$WORK/last.out"
+# Too many categories for the default row (9 keys): refused, and --keys gives more.
+M=$WORK/many
+for c in a b c d e f g h i j; do mkdir -p "$M/cat_$c"; cp "$WORK/bad/rgb.png" "$M/cat_$c/"; done
+expect_exit "ten categories on nine keys is refused" 1 "$TACHIST" stimuli import "$M" --out "$WORK/many.csv" --protocol "$WORK/many.ini"
+check "the refusal names the counts and --keys" grep -q "10 categories but 9 keys in the row f,j,d,k,s,l,a,g,h; give more with --keys" "$WORK/last.err"
+check "no protocol is written" test ! -e "$WORK/many.ini"
+expect_exit "--keys with ten keys" 0 "$TACHIST" stimuli import "$M" --out "$WORK/many.csv" --protocol "$WORK/many.ini" --keys "q,w,e,r,t,y,u,i,o,p"
+expect_exit "check accepts the ten-category protocol" 0 "$TACHIST" check "$WORK/many.ini" --rig "$WORK/rig.ini"
+expect_exit "--keys without --protocol is a usage error" 2 "$TACHIST" stimuli import "$M" --out "$WORK/many.csv" --keys a,b
+printf 'image,shade\nnowhere.png,x\n' >"$WORK/badlabels.csv"
+expect_exit "a labels row naming no image is a problem" 1 "$TACHIST" stimuli import "$M" --out "$WORK/many2.csv" --labels "$WORK/badlabels.csv"
+check "the row is named at its line" grep -q "badlabels.csv:2: no imported image 'nowhere.png'" "$WORK/last.out"
+printf 'picture,shade\n' >"$WORK/badhead.csv"
+expect_exit "a labels file without an image column is refused" 1 "$TACHIST" stimuli import "$M" --out "$WORK/many3.csv" --labels "$WORK/badhead.csv"
+check "the header problem is named" grep -q "badhead.csv:1: the first column must be 'image'" "$WORK/last.err"
