@@ -23,7 +23,8 @@ struct stimproto_input {
 };
 
 /* Writes the protocol. Returns 0, or -1 with a sentence in ERR (more categories than keys, a
- * category name a protocol cannot hold, a key named twice, the file cannot be written). */
+ * category name a protocol cannot hold, a key named twice, the file exists already or cannot be
+ * written). */
 int stimproto_write(const struct stimproto_input *in, char *err, size_t errlen);
 
 #endif

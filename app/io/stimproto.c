@@ -204,9 +204,13 @@ int stimproto_write(const struct stimproto_input *in, char *err, size_t errlen)
 				 "its folder", in->categories[k]);
 			goto done;
 		}
-	FILE *f = fopen(in->path, "w");
+	FILE *f = fopen(in->path, "wx");   /* an edited protocol is never overwritten */
 	if (!f) {
-		snprintf(err, errlen, "cannot write %s: %s", in->path, strerror(errno));
+		if (errno == EEXIST)
+			snprintf(err, errlen, "%s exists already; not overwritten (remove it or name "
+				 "another file)", in->path);
+		else
+			snprintf(err, errlen, "cannot write %s: %s", in->path, strerror(errno));
 		goto done;
 	}
 	char *pdir = fspath_dir(in->path);

@@ -348,3 +348,6 @@ check "the row is named at its line" grep -q "badlabels.csv:2: no imported image
 printf 'picture,shade\n' >"$WORK/badhead.csv"
 expect_exit "a labels file without an image column is refused" 1 "$TACHIST" stimuli import "$M" --out "$WORK/many3.csv" --labels "$WORK/badhead.csv"
 check "the header problem is named" grep -q "badhead.csv:1: the first column must be 'image'" "$WORK/last.err"
+expect_exit "an existing protocol is not overwritten" 1 "$TACHIST" stimuli import "$P/set" --out "$P/list.csv" --protocol "$P/study.ini"
+check "the refusal says why" grep -q "study.ini exists already; not overwritten" "$WORK/last.err"
+check "the edited protocol is untouched" grep -q "^lantern = d" "$P/study.ini"
