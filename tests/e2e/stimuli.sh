@@ -351,3 +351,20 @@ check "the header problem is named" grep -q "badhead.csv:1: the first column mus
 expect_exit "an existing protocol is not overwritten" 1 "$TACHIST" stimuli import "$P/set" --out "$P/list.csv" --protocol "$P/study.ini"
 check "the refusal says why" grep -q "study.ini exists already; not overwritten" "$WORK/last.err"
 check "the edited protocol is untouched" grep -q "^lantern = d" "$P/study.ini"
+# Unequal categories: 10 images against 1 cannot keep runs at 3 (the largest category m of n
+# images needs m <= 3(n - m + 1)), so the main block gets no run limit and check still accepts.
+U=$WORK/uneven
+mkdir -p "$U/big" "$U/one"
+for k in 0 1 2 3 4 5 6 7 8 9; do cp "$WORK/bad/rgb.png" "$U/big/b$k.png"; done
+cp "$WORK/bad/small.png" "$U/one/"
+expect_exit "import of unequal categories with --protocol" 0 "$TACHIST" stimuli import "$U" --out "$WORK/uneven.csv" --protocol "$WORK/uneven.ini"
+check "no run limit when none can be kept" grep -q "^longest_streak = 0" "$WORK/uneven.ini"
+expect_exit "check accepts it unchanged" 0 "$TACHIST" check "$WORK/uneven.ini" --rig "$WORK/rig.ini"
+# Four and three of two categories: 4 <= 3(7 - 4 + 1), so the limit of 3 is kept and check plans it.
+E=$WORK/even
+mkdir -p "$E/p" "$E/q"
+for k in 0 1 2 3; do cp "$WORK/bad/rgb.png" "$E/p/p$k.png"; done
+for k in 0 1 2; do cp "$WORK/bad/small.png" "$E/q/q$k.png"; done
+expect_exit "import of 4 + 3 images with --protocol" 0 "$TACHIST" stimuli import "$E" --out "$WORK/even.csv" --protocol "$WORK/even.ini"
+check "a run limit of 3 when it can be kept" grep -q "^longest_streak = 3" "$WORK/even.ini"
+expect_exit "check accepts it unchanged" 0 "$TACHIST" check "$WORK/even.ini" --rig "$WORK/rig.ini"
