@@ -159,6 +159,10 @@ static void on_field(void *data, size_t len, void *user)
 	struct csvread *r = user;
 	if (!r->cur.n)
 		r->cur.line = r->line;
+	if (!r->nrows && !r->cur.n && len >= 3 && !memcmp(data, "\xEF\xBB\xBF", 3)) {
+		data = (char *)data + 3;   /* a UTF-8 byte order mark */
+		len -= 3;
+	}
 	r->cur.cells = xrealloc(r->cur.cells, (r->cur.n + 1) * sizeof *r->cur.cells);
 	char *c = xmalloc(len + 1);
 	memcpy(c, data, len);

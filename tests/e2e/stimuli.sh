@@ -368,3 +368,7 @@ for k in 0 1 2; do cp "$WORK/bad/small.png" "$E/q/q$k.png"; done
 expect_exit "import of 4 + 3 images with --protocol" 0 "$TACHIST" stimuli import "$E" --out "$WORK/even.csv" --protocol "$WORK/even.ini"
 check "a run limit of 3 when it can be kept" grep -q "^longest_streak = 3" "$WORK/even.ini"
 expect_exit "check accepts it unchanged" 0 "$TACHIST" check "$WORK/even.ini" --rig "$WORK/rig.ini"
+printf '\357\273\277image,shade\r\ncat_a/rgb.png,x\r\n' >"$WORK/bomlabels.csv"
+expect_exit "a labels file with a byte order mark and CRLF line ends" 0 "$TACHIST" stimuli import "$M" --out "$WORK/bom.csv" --labels "$WORK/bomlabels.csv"
+check "its label is joined" grep -q '"many/cat_a/rgb.png","cat_a","x"' "$WORK/bom.csv"
+check "images without a row are noted" grep -q "bomlabels.csv: 9 images have no row; their labels are left empty" "$WORK/last.out"
