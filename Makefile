@@ -6,7 +6,7 @@ BUILD    ?= build
 CC       ?= cc
 CFLAGS   ?= -O2 -g
 WARN     := -std=c11 -Wall -Wextra -Wpedantic -Werror
-PKGS     := sdl2 SDL2_image SDL2_ttf fontconfig libevdev libpq sqlite3 inih libcjson gsl ncursesw
+PKGS     := sdl2 SDL2_image SDL2_ttf fontconfig libevdev libpq libpng sqlite3 inih libcjson gsl ncursesw
 # The pkg-config flags are computed the first time a recipe uses them, never when this file is read:
 # `make demo` and `make test` run `deps` first, which may install the very packages they come from.
 # A library pkg-config cannot find is named and stops the build.
@@ -35,7 +35,7 @@ DEB_PKGS := gcc make pkg-config libncurses-dev libsdl2-dev libsdl2-image-dev lib
             r-base-core r-cran-psyphy python3-numpy python3-scipy python3-statsmodels \
             clang libclang-rt-14-dev librsvg2-bin sqlite3 tmux libxml2-utils time \
             libsdl2-ttf-dev libfontconfig-dev fonts-dejavu-core libevdev-dev libpq-dev \
-            postgresql mandoc
+            postgresql mandoc libpng-dev
 
 PREFIX   ?= /usr/local
 BINDIR   ?= $(PREFIX)/bin

@@ -43,6 +43,13 @@ int image_load(const char *path, struct image *img, struct image_info *info, cha
 	       size_t errlen);
 /* Writes IMG as a PNG. Returns 0 or -1 with ERR. */
 int image_save_png(const char *path, const struct image *img, char *err, size_t errlen);
+/* Writes IMG as an 8-bit PNG with CHANNELS stored channels (struct image_info's meaning: 1 grey,
+ * taken from R; 2 grey + alpha; 3 RGB; 4 RGBA), through libpng. Returns 0 or -1 with ERR. */
+int image_save_png_channels(const char *path, const struct image *img, int channels, char *err,
+			    size_t errlen);
+/* The colour channels over which two images are compared: 1 when both files store grey (with or
+ * without alpha), else 3. Alpha never counts. */
+int image_colour_channels(const struct image_info *a, const struct image_info *b);
 void image_free(struct image *img);
 
 #endif

@@ -14,6 +14,7 @@
 
 #include <SDL.h>
 #include <SDL_image.h>
+#include <png.h>
 
 static int initialised;
 
@@ -243,6 +244,46 @@ int image_save_png(const char *path, const struct image *img, char *err, size_t 
 		return -1;
 	}
 	return 0;
+}
+
+int image_save_png_channels(const char *path, const struct image *img, int channels, char *err,
+			    size_t errlen)
+{
+	static const png_uint_32 formats[5] = {0, PNG_FORMAT_GRAY, PNG_FORMAT_GA, PNG_FORMAT_RGB,
+					      PNG_FORMAT_RGBA};
+	static const int take[5][4] = {{0}, {0}, {0, 3}, {0, 1, 2}, {0, 1, 2, 3}};
+	if (channels < 1 || channels > 4) {
+		snprintf(err, errlen, "cannot write %s with %d channels", path, channels);
+		return -1;
+	}
+	size_t npix = (size_t)img->width * (size_t)img->height;
+	unsigned char *buf = malloc(npix * (size_t)channels);
+	if (!buf) {
+		snprintf(err, errlen, "out of memory for %s", path);
+		return -1;
+	}
+	for (size_t i = 0; i < npix; i++)
+		for (int c = 0; c < channels; c++)
+			buf[i * (size_t)channels + (size_t)c] = img->rgba[4 * i + (size_t)take[channels][c]];
+	png_image pi;
+	memset(&pi, 0, sizeof pi);
+	pi.version = PNG_IMAGE_VERSION;
+	pi.width = (png_uint_32)img->width;
+	pi.height = (png_uint_32)img->height;
+	pi.format = formats[channels];
+	int ok = png_image_write_to_file(&pi, path, 0, buf, 0, NULL);
+	free(buf);
+	if (!ok) {
+		snprintf(err, errlen, "cannot write %s (%s)", path, pi.message);
+		png_image_free(&pi);
+		return -1;
+	}
+	return 0;
+}
+
+int image_colour_channels(const struct image_info *a, const struct image_info *b)
+{
+	return a->channels <= 2 && b->channels <= 2 ? 1 : 3;
 }
 
 void image_free(struct image *img)

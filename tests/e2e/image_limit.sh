@@ -17,6 +17,7 @@ refresh_hz = 60
 RIG
 printf 'image,category,level,exemplar\nok.png,ring,0,1\nbig.png,bar,0,2\nclaim.png,cross,0,2\n' >"$WORK/list.csv"
 mkproto "$WORK/p.ini" list.csv 2
+printf 'image,category,level,exemplar\nok.png,ring,0,1\nok.png,bar,0,2\n' >"$WORK/ok.csv"
 
 # Wall time and peak memory are printed for the record, never asserted (a loaded machine is slow
 # and ASan adds its own memory); what is asserted is the refusal and its message.
@@ -27,9 +28,12 @@ check "the real big image is named at its row" grep -q "list.csv:3: error: image
 check "the claiming image is named at its row" grep -q "list.csv:4: error: image 'claim.png': .*claim.png is 100000x100000 px by its header, over the limit of 8192 px a side" "$WORK/last.err"
 check "the good image is not flagged" sh -c "! grep -q \"image 'ok.png'\" '$WORK/last.err'"
 
-expect_exit "stimuli audit flags both as unreadable" 1 timed "$TACHIST" stimuli audit "$WORK/list.csv" --rig "$WORK/rig.ini"
+expect_exit "stimuli audit flags both as unreadable" 1 timed "$TACHIST" stimuli audit "$WORK/list.csv" --rig "$WORK/rig.ini" --verbose
 echo "# audit: $(tail -n 1 "$WORK/time")"
-check "audit names the claimed size" grep -q "list.csv:4: unreadable: .*100000x100000 px by its header" "$WORK/last.out"
+check "audit gathers both in one group" grep -q "list.csv:3: unreadable: 2 images cannot be read" "$WORK/last.out"
+check "audit --verbose names the claimed size" grep -q "^  .*list.csv:4: .*100000x100000 px by its header" "$WORK/last.out"
+expect_exit "audit --max-image-side below the good image" 1 "$TACHIST" stimuli audit "$WORK/ok.csv" --rig "$WORK/rig.ini" --max-image-side 32 --json
+check "the option's limit is in the message" grep -q "over the limit of 32 px a side" "$WORK/last.out"
 
 mkdir -p "$WORK/tree/a"
 cp "$WORK/big.png" "$WORK/claim.png" "$WORK/ok.png" "$WORK/tree/a/"
@@ -41,7 +45,6 @@ check "import keeps the good image" grep -q "ok.png" "$WORK/imp.csv"
 # The limit is the rig's max_image_side: lowered below the good image (64 px), check refuses it.
 cp "$WORK/rig.ini" "$WORK/small-rig.ini"
 echo "max_image_side = 32" >>"$WORK/small-rig.ini"
-printf 'image,category,level,exemplar\nok.png,ring,0,1\nok.png,bar,0,2\n' >"$WORK/ok.csv"
 mkproto "$WORK/ok.ini" ok.csv 2
 expect_exit "the good list passes check with the default limit" 0 "$TACHIST" check "$WORK/ok.ini" --rig "$WORK/rig.ini"
 expect_exit "a rig's lower limit refuses it" 1 "$TACHIST" check "$WORK/ok.ini" --rig "$WORK/small-rig.ini"

@@ -231,3 +231,144 @@ expect_exit "controls --budget level with an unreachable level" 1 "$TACHIST" sti
 expect_exit "controls without --out is a usage error" 2 "$TACHIST" stimuli controls "$SET/list.csv"
 expect_exit "an unknown action is a usage error" 2 "$TACHIST" stimuli frob
 expect_exit "audit of a missing list exits 1" 1 "$TACHIST" stimuli audit "$WORK/none.csv"
+
+# --- controls of grey images stay grey and keep the audit's L2 ------------------------------
+# A grey source and grey perturbed versions: the controls must be grey PNGs (one stored channel),
+# their L2 over that one channel within 1% of the budget, l2_achieved equal to numpy's L2 of the
+# written file, and the audit's L2 of each control equal to l2_achieved (the audit compares grey
+# with grey over one channel; a control stored as RGB would be compared over three and come out
+# √3 larger).
+G=$WORK/grey
+$PY - "$G" "$GEN" <<'EOF2'
+import os, sys
+import numpy as np
+sys.path.insert(0, os.path.dirname(sys.argv[2])); import stimset
+root = sys.argv[1]; os.makedirs(root + "/g", exist_ok=True)
+rng = np.random.default_rng(11)
+rows = []
+for k in range(3):
+    src = stimset.clean_image(rng, 64, 48, k)[:, :, 1]
+    stimset.write_png("%s/g/s%d.png" % (root, k), src)
+    rows.append("g/s%d.png,g,0," % k)
+    for lev in (1.0, 3.0):
+        img = stimset.perturb(rng, src, lev)
+        stimset.write_png("%s/g/s%d_%d.png" % (root, k, lev), img)
+        l2, _ = stimset.norms(img, src)
+        rows.append("g/s%d_%d.png,g,%.9g,g/s%d.png" % (k, lev, l2, k))
+open(root + "/list.csv", "w").write("image,category,level,source\n" + "\n".join(rows) + "\n")
+EOF2
+expect_exit "controls of a grey set exit 0" 0 "$TACHIST" stimuli controls "$G/list.csv" --out "$WORK/gctl"
+check "grey controls: grey files, L2 over one channel within 1% of the budget (numpy)" $PY - "$WORK/gctl" "$GEN" <<'EOF2'
+import csv, os, sys
+sys.path.insert(0, os.path.dirname(sys.argv[2])); import stimset
+d = sys.argv[1]
+rows = list(csv.DictReader(open(d + "/controls.csv", newline="")))
+ctl = [r for r in rows if r["control"] == "random"]
+assert len(ctl) == 6, len(ctl)
+bad = 0
+for r in ctl:
+    c = stimset.read_png(os.path.join(d, r["image"]))
+    s = stimset.read_png(os.path.join(d, r["source"]))
+    if c.shape[2] != 1:
+        print("#", r["image"], "has", c.shape[2], "channels"); bad += 1; continue
+    l2, _ = stimset.norms(c, s)
+    budget = float(r["level"])
+    if abs(l2 - budget) > 0.01 * budget or abs(l2 - float(r["l2_achieved"])) > 1e-6:
+        print("#", r["image"], l2, budget, r["l2_achieved"]); bad += 1
+sys.exit(1 if bad else 0)
+EOF2
+expect_exit "the grey controls list audits clean (levels as declared)" 0 "$TACHIST" stimuli audit "$WORK/gctl/controls.csv" --json --rig "$WORK/rig.ini" --size-deg 1
+check "audit's L2 of every grey control equals l2_achieved" $PY - "$WORK/last.out" "$WORK/gctl/controls.csv" <<'EOF2'
+import csv, json, sys
+rows = {r["image"]: r for r in json.load(open(sys.argv[1]))["rows"]}
+ctl = [r for r in csv.DictReader(open(sys.argv[2], newline="")) if r["control"] == "random"]
+bad = [r["image"] for r in ctl if rows[r["image"]]["channels"] != 1
+       or abs(rows[r["image"]]["l2"] - float(r["l2_achieved"])) > 1e-7]   # 9 digits in the CSV
+for b in bad: print("#", b)
+sys.exit(1 if bad else 0)
+EOF2
+
+# --- audit groups flags of one kind ---------------------------------------------------------
+# The flagged set on the small rig at 4 deg: 44 readable rows are all scaled up; one text line
+# says so with the range of factors, --verbose lists each image under it, --json has the group
+# with its lines and keeps one entry per row in flags.
+expect_exit "grouped text audit exits 1" 1 "$TACHIST" stimuli audit "$F/list.csv" --rig "$WORK/rig.ini" --size-deg 4
+check "one line for the 44 up-scaled images, with the range of factors" grep -q "list.csv:2: upscaled: 44 images would be scaled up [0-9.]*×–[0-9.]*× to span [0-9.]* deg" "$WORK/last.out"
+expect_eq "no per-image upscaled lines without --verbose" 0 "$(grep -c "would be scaled up from" "$WORK/last.out")"
+expect_exit "grouped text audit --verbose exits 1" 1 "$TACHIST" stimuli audit "$F/list.csv" --rig "$WORK/rig.ini" --size-deg 4 --verbose
+expect_eq "--verbose lists every up-scaled image" 44 "$(grep -c "^  .*list.csv:[0-9]*: .* would be scaled up from" "$WORK/last.out")"
+check "flag_groups in JSON: the up-scaled group has 44 lines and the factor range of the rows" $PY - "$WORK/flagged.json" <<'EOF2'
+import json, sys
+a = json.load(open(sys.argv[1]))
+(g,) = [g for g in a["flag_groups"] if g["kind"] == "upscaled"]
+up = sorted(f["line"] for f in a["flags"] if f["kind"] == "upscaled")
+# the factor is stimulus px / longer side; rows are 64x48 (x2.x) except small.png (16x16)
+px = a["stimulus_px"]
+lo, hi = px / 64, px / 16
+ok = g["count"] == 44 and sorted(g["lines"]) == up and ("%.2f" % lo) in g["summary"] and ("%.2f" % hi) in g["summary"]
+print("#", g["summary"]) if not ok else None
+sys.exit(0 if ok else 1)
+EOF2
+
+# --- import --protocol: a starting protocol that check accepts unchanged ----------------------
+P=$WORK/proto
+mkdir -p "$P/set"
+cp -r "$SET/kettle" "$SET/lantern" "$SET/compass" "$P/set/"
+# labels.csv keyed by image (path under the folder); one row names no imported image.
+$PY - "$P/set" <<'EOF2'
+import os, sys
+root = sys.argv[1]
+rows = ["image,exemplar,shade"]
+for cat in sorted(os.listdir(root)):
+    for name in sorted(os.listdir(os.path.join(root, cat))):
+        rows.append("%s/%s,%s,%s" % (cat, name, name[3:5], "dark" if "l2" in name else "clean"))
+open(os.path.join(root, "labels.csv"), "w").write("\n".join(rows) + "\n")
+EOF2
+expect_exit "import --protocol exits 0" 0 "$TACHIST" stimuli import "$P/set" --out "$P/list.csv" --level-from '{source}_l2_{level}' --protocol "$P/study.ini"
+check "import says it used the labels file" grep -q "labels from .*labels.csv: 2 columns" "$WORK/last.out"
+check "the list carries the label columns" grep -q '^"image","category","level","source","exemplar","shade"' "$P/list.csv"
+check "labels are joined by image" grep -q '"set/kettle/ket01_l2_4p0.png","kettle","4","set/kettle/ket01.png","01","dark"' "$P/list.csv"
+check "the protocol names the new section and words" sh -c "grep -q '^\[categories\]' '$P/study.ini' && grep -q '^longest_streak = ' '$P/study.ini'"
+check "keys come from the default row in order" sh -c "grep -q '^compass = f' '$P/study.ini' && grep -q '^kettle = j' '$P/study.ini' && grep -q '^lantern = d' '$P/study.ini'"
+check "every key line has a comment above it" awk '/^[a-z_]+ = / && prev !~ /^;/ && sect != "[categories]" { bad = 1; print "# " $0 } /^\[/ { sect = $0 } { prev = $0 } END { exit bad }' "$P/study.ini"
+expect_exit "check accepts the written protocol unchanged" 0 "$TACHIST" check "$P/study.ini" --rig "$WORK/rig.ini"
+check "check plans both blocks" grep -q "practice" "$WORK/last.out"
+# Too many categories for the default row (9 keys): refused, and --keys gives more.
+M=$WORK/many
+for c in a b c d e f g h i j; do mkdir -p "$M/cat_$c"; cp "$WORK/bad/rgb.png" "$M/cat_$c/"; done
+expect_exit "ten categories on nine keys is refused" 1 "$TACHIST" stimuli import "$M" --out "$WORK/many.csv" --protocol "$WORK/many.ini"
+check "the refusal names the counts and --keys" grep -q "10 categories but 9 keys in the row f,j,d,k,s,l,a,g,h; give more with --keys" "$WORK/last.err"
+check "no protocol is written" test ! -e "$WORK/many.ini"
+expect_exit "--keys with ten keys" 0 "$TACHIST" stimuli import "$M" --out "$WORK/many.csv" --protocol "$WORK/many.ini" --keys "q,w,e,r,t,y,u,i,o,p"
+expect_exit "check accepts the ten-category protocol" 0 "$TACHIST" check "$WORK/many.ini" --rig "$WORK/rig.ini"
+expect_exit "--keys without --protocol is a usage error" 2 "$TACHIST" stimuli import "$M" --out "$WORK/many.csv" --keys a,b
+printf 'image,shade\nnowhere.png,x\n' >"$WORK/badlabels.csv"
+expect_exit "a labels row naming no image is a problem" 1 "$TACHIST" stimuli import "$M" --out "$WORK/many2.csv" --labels "$WORK/badlabels.csv"
+check "the row is named at its line" grep -q "badlabels.csv:2: no imported image 'nowhere.png'" "$WORK/last.out"
+printf 'picture,shade\n' >"$WORK/badhead.csv"
+expect_exit "a labels file without an image column is refused" 1 "$TACHIST" stimuli import "$M" --out "$WORK/many3.csv" --labels "$WORK/badhead.csv"
+check "the header problem is named" grep -q "badhead.csv:1: the first column must be 'image'" "$WORK/last.err"
+expect_exit "an existing protocol is not overwritten" 1 "$TACHIST" stimuli import "$P/set" --out "$P/list.csv" --protocol "$P/study.ini"
+check "the refusal says why" grep -q "study.ini exists already; not overwritten" "$WORK/last.err"
+check "the edited protocol is untouched" grep -q "^lantern = d" "$P/study.ini"
+# Unequal categories: 10 images against 1 cannot keep runs at 3 (the largest category m of n
+# images needs m <= 3(n - m + 1)), so the main block gets no run limit and check still accepts.
+U=$WORK/uneven
+mkdir -p "$U/big" "$U/one"
+for k in 0 1 2 3 4 5 6 7 8 9; do cp "$WORK/bad/rgb.png" "$U/big/b$k.png"; done
+cp "$WORK/bad/small.png" "$U/one/"
+expect_exit "import of unequal categories with --protocol" 0 "$TACHIST" stimuli import "$U" --out "$WORK/uneven.csv" --protocol "$WORK/uneven.ini"
+check "no run limit when none can be kept" grep -q "^longest_streak = 0" "$WORK/uneven.ini"
+expect_exit "check accepts it unchanged" 0 "$TACHIST" check "$WORK/uneven.ini" --rig "$WORK/rig.ini"
+# Four and three of two categories: 4 <= 3(7 - 4 + 1), so the limit of 3 is kept and check plans it.
+E=$WORK/even
+mkdir -p "$E/p" "$E/q"
+for k in 0 1 2 3; do cp "$WORK/bad/rgb.png" "$E/p/p$k.png"; done
+for k in 0 1 2; do cp "$WORK/bad/small.png" "$E/q/q$k.png"; done
+expect_exit "import of 4 + 3 images with --protocol" 0 "$TACHIST" stimuli import "$E" --out "$WORK/even.csv" --protocol "$WORK/even.ini"
+check "a run limit of 3 when it can be kept" grep -q "^longest_streak = 3" "$WORK/even.ini"
+expect_exit "check accepts it unchanged" 0 "$TACHIST" check "$WORK/even.ini" --rig "$WORK/rig.ini"
+printf '\357\273\277image,shade\r\ncat_a/rgb.png,x\r\n' >"$WORK/bomlabels.csv"
+expect_exit "a labels file with a byte order mark and CRLF line ends" 0 "$TACHIST" stimuli import "$M" --out "$WORK/bom.csv" --labels "$WORK/bomlabels.csv"
+check "its label is joined" grep -q '"many/cat_a/rgb.png","cat_a","x"' "$WORK/bom.csv"
+check "images without a row are noted" grep -q "bomlabels.csv: 9 images have no row; their labels are left empty" "$WORK/last.out"
