@@ -30,6 +30,7 @@ int cmd_calc(int argc, char **argv);
 int cmd_stimuli(int argc, char **argv);
 int cmd_merge(int argc, char **argv);
 int cmd_demo(int argc, char **argv);
+int cmd_calibrate(int argc, char **argv);
 
 /* Shared by `run` and `demo` (app/cmd/cmd_run.c): parse the session options from ARGV[FIRST..]
  * into O (*RIG_ARG gets --rig), returning 0 or -1 after a message; run one session and print its

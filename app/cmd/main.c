@@ -44,6 +44,12 @@ static const struct cmd commands[] = {
 	 "                         [--units unit|255] [--tolerance FRAC]\n", cmd_stimuli},
 	{"merge", "pool databases from several rigs into one",
 	 "tachist merge --into FILE DB...\n", cmd_merge},
+	{"calibrate", "measure the display's luminance with a photometer into the rig profile",
+	 "tachist calibrate [--rig FILE] [--from CSV] [--steps N] [--channels grey|rgb|all]\n"
+	 "                  [--patch-deg D] [--surround CODE] [--order shuffled|ascending] [--seed N]\n"
+	 "                  [--model auto|fit|table] [--measured YYYY-MM-DD] [--max-age-days N]\n"
+	 "                  [--dry-run] [--json] [--headless] [--window] [--screenshots DIR]\n",
+	 cmd_calibrate},
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
 	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n", cmd_demo},
 };
