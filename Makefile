@@ -7,8 +7,15 @@ CC       ?= cc
 CFLAGS   ?= -O2 -g
 WARN     := -std=c11 -Wall -Wextra -Wpedantic -Werror
 PKGS     := sdl2 SDL2_image SDL2_ttf fontconfig libevdev libpq sqlite3 inih libcjson gsl ncursesw
-PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
-PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lSDL2_test -lcsv -lm
+# The pkg-config flags are computed the first time a recipe uses them, never when this file is read:
+# `make demo` and `make test` run `deps` first, which may install the very packages they come from.
+# A library pkg-config cannot find is named and stops the build.
+pkg_missing = $(shell for p in $(PKGS); do pkg-config --exists $$p 2>/dev/null || printf '%s ' $$p; done)
+pkg_flags   = $(if $(shell command -v pkg-config),,$(error pkg-config is not installed; run `make deps`))$\
+              $(if $(strip $(pkg_missing)),$(error pkg-config cannot find: $(strip $(pkg_missing)); run `make deps`))$\
+              $(shell pkg-config $(1) $(PKGS))
+PKG_CFLAGS  = $(eval PKG_CFLAGS := $(call pkg_flags,--cflags))$(PKG_CFLAGS)
+PKG_LIBS    = $(eval PKG_LIBS := $(call pkg_flags,--libs) -lSDL2_test -lcsv -lm)$(PKG_LIBS)
 CPPFLAGS += -Iinclude -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE
 Q        ?= @
 ALL_CFLAGS = $(WARN) $(CPPFLAGS) $(PKG_CFLAGS) $(CFLAGS) -MMD -MP
@@ -30,7 +37,7 @@ DEB_PKGS := gcc make pkg-config libncurses-dev libsdl2-dev libsdl2-image-dev lib
             libsdl2-ttf-dev libfontconfig-dev fonts-dejavu-core libevdev-dev libpq-dev \
             postgresql mandoc
 
-.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets
+.PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets soak compilers
 all: $(BUILD)/tachist
 
 $(BUILD)/tachist: $(OBJ)
@@ -55,18 +62,23 @@ $(BUILD)/tools/%: tests/tools/%.c $(BUILD)/libtachist.a
 
 check-build: $(BUILD)/tachist $(TESTBIN) $(TOOLBIN)
 
-# Install what is missing on a Debian 12 machine; nothing when all is there.
+# Install what is missing on a Debian 12 machine; nothing when all is there. As another user than
+# root, print the one command that installs them and stop. Every package still missing afterwards
+# is named.
 deps:
 	@missing=""; for p in $(DEB_PKGS); do \
 	  dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q 'ok installed' || missing="$$missing $$p"; \
 	done; \
 	if [ -z "$$missing" ]; then exit 0; fi; \
-	if [ "$$(id -u)" = 0 ]; then \
-	  echo "deps: installing$$missing"; \
-	  apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$missing >/dev/null || exit 1; \
-	else \
+	if [ "$$(id -u)" != 0 ]; then \
 	  echo "deps: missing packages. Run:"; echo "  sudo apt-get install -y$$missing"; exit 1; \
-	fi
+	fi; \
+	echo "deps: installing$$missing"; \
+	apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$missing >/dev/null; \
+	still=""; for p in $$missing; do \
+	  dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q 'ok installed' || still="$$still $$p"; \
+	done; \
+	if [ -n "$$still" ]; then echo "deps: could not install:$$still" >&2; exit 1; fi
 
 # Tests build with AddressSanitizer and UBSan in their own folder.
 SAN := -O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=undefined
@@ -79,11 +91,19 @@ bench: deps
 	$(MAKE) --no-print-directory BUILD=build/rel CFLAGS="-O2 -g -DNDEBUG" check-build
 	@BUILD=build/rel sh tests/bench/run.sh
 
-demo: deps $(BUILD)/tachist demo-assets
+# demo, test and bench build in a sub-make, after `deps` has installed what was missing.
+demo: deps
+	$(MAKE) --no-print-directory $(BUILD)/tachist demo-assets
 	./$(BUILD)/tachist demo
 
 fuzz:
 	@sh tests/fuzz/run.sh
+
+# Long robustness runs (every exact interval, simulated fits, the whole malformed-input corpus):
+# tests/soak/*.sh, each printing ok/not ok lines like an end-to-end script. Minutes, not in `test`.
+soak: deps
+	$(MAKE) --no-print-directory BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
+	@BUILD=build/san sh tests/soak/run.sh
 
 # The demo stimulus set is committed; it is drawn again only when its list is missing.
 demo-assets:

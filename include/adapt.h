@@ -29,10 +29,10 @@
 
 enum adapt_rule { ADAPT_UPDOWN, ADAPT_WEIGHTED, ADAPT_QUEST };
 enum adapt_axis { ADAPT_AXIS_LINEAR, ADAPT_AXIS_LOG };
-enum adapt_place { ADAPT_PLACE_MEAN, ADAPT_PLACE_MODE, ADAPT_PLACE_QUANTILE };
+enum adapt_test_at { ADAPT_TEST_AT_MEAN, ADAPT_TEST_AT_PEAK, ADAPT_TEST_AT_PERCENTILE };
 
 /* Parameters of one staircase. Levels (start, floor, ceiling) in level units; steps, prior_sd and
- * grain in axis units. */
+ * grid_step in axis units. */
 struct adapt_params {
 	enum adapt_rule rule;
 	enum adapt_axis axis;
@@ -52,16 +52,16 @@ struct adapt_params {
 	/* QUEST */
 	double beta, delta, gamma;   /* Weibull slope, lapse share, guess rate (1/m) */
 	double prior_sd;          /* SD of the Gaussian prior on the threshold, axis units */
-	double grain;             /* grid spacing of the posterior, axis units */
+	double grid_step;         /* grid spacing of the posterior, axis units */
 	double grid_lo, grid_hi;  /* grid range in axis units (adapt_spec_expand fills it) */
-	enum adapt_place place;   /* where the next trial goes */
-	double quantile;          /* place = quantile: the posterior quantile */
+	enum adapt_test_at test_at;   /* where the next trial goes: posterior mean, peak, percentile */
+	double percentile;        /* test_at = percentile: the posterior's cumulative share there */
 	double stop_sd;           /* also stop when the posterior SD falls below this; 0 = off */
 };
 
 /* Defaults: up-down, log axis, higher easier, N = 2, no halving, k = 6, β = 3.5, δ = 0.01,
- * γ = 0.5, prior SD 0.5, grain 0.01, place = mean, quantile 0.5. start/floor/ceiling/steps/
- * max_trials are left 0 for the caller. */
+ * γ = 0.5, prior SD 0.5, grid_step 0.01, test_at = mean, percentile 0.5.
+ * start/floor/ceiling/steps/max_trials are left 0 for the caller. */
 void adapt_params_default(struct adapt_params *p);
 /* "updown", "weighted", "quest" (the protocol's words). */
 const char *adapt_rule_name(enum adapt_rule r);

@@ -23,7 +23,7 @@ struct plan_trial {
 	int block_trial;  /* 0-based within the block */
 	int trial;        /* 0-based within the session */
 	int stim;         /* index into the stimulus list; -1 when an adaptive rule picks it */
-	int choice;       /* category of the trial (index among the protocol's choices) */
+	int choice;       /* category of the trial (index among the protocol's categories) */
 	int staircase;    /* adaptive: which staircase of the block picks the level; else -1 */
 };
 

@@ -40,7 +40,7 @@ struct protocol_block {
 	size_t nfilters;
 	int repeats;                   /* each selected stimulus is shown this many times */
 	enum protocol_order order;
-	int max_run;                   /* longest run of one category allowed; 0 = no limit */
+	int longest_streak;            /* longest run of one category allowed; 0 = no limit */
 	bool practice;
 	bool feedback;                 /* feedback shown in this block (practice blocks default yes) */
 	bool repeat_faults;            /* trials with timing faults are shown again at the block end */
@@ -110,7 +110,7 @@ struct protocol_key {
 struct protocol_section {
 	const char *kind;           /* word in the header: "timing", "block", "adaptive" */
 	int named;                  /* header is "[kind NAME]" */
-	const struct protocol_key *keys;   /* NULL: any key goes to custom() (like [choices]) */
+	const struct protocol_key *keys;   /* NULL: any key goes to custom() (like [categories]) */
 	size_t nkeys;
 	/* Starts an instance of the section (NAME is NULL unless named). Returns 0, or -1 to skip the
 	 * instance's keys (after reporting why). */

@@ -25,6 +25,7 @@ struct rig {
 	enum rig_corner marker_corner;
 	int marker_px;     /* side of the square marker patch */
 	struct lum_cal *lum; /* the [luminance] calibration (owned), NULL when the rig has none */
+	int max_image_side; /* widest or tallest image file accepted, px (default: image.h's) */
 };
 
 /* Loads and validates PATH; every problem goes to D as FILE:LINE. Returns 0 when usable, -1 when

@@ -32,7 +32,7 @@
  *
  * Adaptive blocks: trials with plan_trial.staircase >= 0 get their stimulus from the adaptive
  * module right before the trial and report the outcome right after it; see the two marked hooks in
- * app/run/run.c (run_adaptive_pick / run_adaptive_update). */
+ * app/run/run_adaptive.c (run_adaptive_pick / run_adaptive_update). */
 #ifndef TACHIST_RUN_H
 #define TACHIST_RUN_H
 

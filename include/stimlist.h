@@ -17,7 +17,7 @@ struct stim {
 	char *image;        /* as written in the list */
 	char *path;         /* resolved */
 	char *category;
-	int choice;         /* index among the protocol's choices, -1 when loaded without one */
+	int choice;         /* index among the protocol's categories, -1 when loaded without one */
 	bool has_level;
 	double level;
 	char *source;       /* as written, NULL when absent or empty */

@@ -205,7 +205,7 @@ void store_iter_close(struct store_iter *it);
  * names in order of first appearance (for table headers). */
 const struct store_session *store_iter_sessions(const struct store_iter *it, size_t *n);
 const char *const *store_iter_label_names(const struct store_iter *it, size_t *n);
-/* Category names (the protocol's choices, in order) of a session, as stored with its first
+/* Category names (the protocol's categories, in order) of a session, as stored with its first
  * trial; borrowed until close. */
 const char *const *store_iter_choices(const struct store_iter *it, size_t session_index,
 				      size_t *n);

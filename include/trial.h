@@ -12,7 +12,7 @@ struct trial_record {
 	int block_trial;        /* 0-based within the block (repeats continue the count) */
 	int trial;              /* 0-based within the session, in the order shown */
 	int stim;               /* index into the stimulus list */
-	int choice;             /* true category (index among the protocol's choices) */
+	int choice;             /* true category (index among the protocol's categories) */
 	bool has_level;
 	double level;           /* level shown */
 	int staircase;          /* -1 when not adaptive */

@@ -1,8 +1,10 @@
 #!/bin/sh
-# Runs every test program and end-to-end script and prints one closing line "N passed, N failed".
-# Unit tests are cmocka programs in $BUILD/tests (TAP output); end-to-end scripts in tests/e2e print
-# "ok - what" or "not ok - what" per check (see tests/e2e/lib.sh). A program that dies before its
-# plan is complete counts its missing checks as failed.
+# Runs every test program and end-to-end script and prints one closing line
+# "N passed, N failed, N skipped". Unit tests are cmocka programs in $BUILD/tests (TAP output);
+# end-to-end scripts in tests/e2e print "ok - what" or "not ok - what" per check (see
+# tests/e2e/lib.sh). A check whose line carries the TAP directive "# SKIP reason" is counted as
+# skipped, never as passed or failed (cmocka writes its skips as "not ok N # SKIP name"). A program
+# that dies before its plan is complete counts its missing checks as failed.
 BUILD=${BUILD:-build/san}
 TACHIST=$(pwd)/$BUILD/tachist
 export BUILD TACHIST
@@ -13,20 +15,25 @@ export UBSAN_OPTIONS=${UBSAN_OPTIONS:-print_stacktrace=1:halt_on_error=1}
 export SDL_AUDIODRIVER=dummy
 log=$BUILD/test-logs
 rm -rf "$log"; mkdir -p "$log"
-pass=0; fail=0
+pass=0; fail=0; skipped=0
 only=${1:-}
+SKIPRE='^\(not \)\{0,1\}ok .*#[[:space:]]*[Ss][Kk][Ii][Pp]'
 
-count() { # file -> adds to pass/fail
-  p=$(grep -c '^ok ' "$1"); f=$(grep -c '^not ok ' "$1")
+count() { # file exit-code name -> adds to pass/fail/skipped
+  s=$(grep -c "$SKIPRE" "$1")
+  p=$(grep -v "$SKIPRE" "$1" | grep -c '^ok ')
+  f=$(grep -v "$SKIPRE" "$1" | grep -c '^not ok ')
   plan=$(sed -n 's/^1\.\.\([0-9][0-9]*\).*/\1/p' "$1" | head -n 1)
-  if [ -n "$plan" ] && [ $((p + f)) -lt "$plan" ]; then f=$((f + plan - p - f)); fi
+  if [ -n "$plan" ] && [ $((p + f + s)) -lt "$plan" ]; then f=$((plan - p - s)); fi
   if [ "$2" != 0 ] && [ "$f" = 0 ]; then f=1; fi
-  pass=$((pass + p)); fail=$((fail + f))
+  pass=$((pass + p)); fail=$((fail + f)); skipped=$((skipped + s))
+  extra=""; [ "$s" != 0 ] && extra=", $s skipped"
   if [ "$f" != 0 ]; then
-    echo "FAIL $3 (exit $2)"; grep -v '^ok ' "$1" | head -n 60
+    echo "FAIL $3 (exit $2$extra)"; grep -v '^ok ' "$1" | grep -v "$SKIPRE" | head -n 60
   else
-    echo "pass $3 ($p)"
+    echo "pass $3 ($p$extra)"
   fi
+  grep "$SKIPRE" "$1" | sed 's/^/  skipped: /'
 }
 
 for t in "$BUILD"/tests/test_*; do
@@ -44,5 +51,5 @@ for s in tests/e2e/*.sh; do
   sh "$s" >"$log/$name.out" 2>&1; rc=$?
   count "$log/$name.out" $rc "e2e/$name"
 done
-echo "$pass passed, $fail failed"
+echo "$pass passed, $fail failed, $skipped skipped"
 [ "$fail" = 0 ]

@@ -258,7 +258,7 @@ static void adapt_testQuestFixedThreshold(void **state)
 		p.max_trials = 40;
 		p.grid_lo = log10(p.start) - 2;
 		p.grid_hi = log10(p.start) + 2;
-		p.place = i % 2 ? ADAPT_PLACE_MODE : ADAPT_PLACE_MEAN;
+		p.test_at = i % 2 ? ADAPT_TEST_AT_PEAK : ADAPT_TEST_AT_MEAN;
 		struct adapt_stair *s = adapt_stair_create(&p);
 		while (!adapt_stair_done(s)) {
 			double level = adapt_stair_next(s);

@@ -27,7 +27,7 @@ static const char *list_csv =
 static void setup_with(struct fixture *f, const char *blocks)
 {
 	char text[4096];
-	snprintf(text, sizeof text, "[experiment]\nlist = s.csv\n[choices]\na = 1\nb = 2\nc = 3\n"
+	snprintf(text, sizeof text, "[experiment]\nlist = s.csv\n[categories]\na = 1\nb = 2\nc = 3\n"
 		 "[timing]\nfixation_ms = 400\nblank_ms = 0\nstimulus_ms = 100\nmask_ms = 0\n"
 		 "response_ms = 0\nfeedback_ms = 300\niti_ms = 500\n[display]\nsize_deg = 4\n%s",
 		 blocks);
@@ -92,13 +92,13 @@ static int longest_run(const struct plan *pl)
 	return best;
 }
 
-/* max_run = 1 with equal counts is always possible; over 200 seeds it always holds. Without a
- * limit, runs of 3 or more do occur (so the check above can fail). */
-static void plan_testMaxRun(void **state)
+/* longest_streak = 1 with equal counts is always possible; over 200 seeds it always holds.
+ * Without a limit, runs of 3 or more do occur (so the check above can fail). */
+static void plan_testLongestStreak(void **state)
 {
 	(void)state;
 	struct fixture f, g;
-	setup_with(&f, "[block main]\nrepeats = 5\nmax_run = 1\n");
+	setup_with(&f, "[block main]\nrepeats = 5\nlongest_streak = 1\n");
 	setup_with(&g, "[block main]\nrepeats = 5\n");
 	struct diag_list d;
 	diag_init(&d);
@@ -124,8 +124,8 @@ static void plan_testImpossibleRun(void **state)
 {
 	(void)state;
 	struct fixture f;
-	setup_with(&f, "[block main]\nselect = category=a,b\nmax_run = 1\n[block x]\n"
-		       "select = category=a & level=0,1\nmax_run = 1\n");
+	setup_with(&f, "[block main]\nselect = category=a,b\nlongest_streak = 1\n[block x]\n"
+		       "select = category=a & level=0,1\nlongest_streak = 1\n");
 	struct plan a;
 	struct diag_list d;
 	diag_init(&d);
@@ -133,7 +133,7 @@ static void plan_testImpossibleRun(void **state)
 	char buf[512];
 	diag_format(&d.v[0], buf, sizeof buf);
 	assert_string_equal(buf, "p.ini:20: error: block 'x': no order of its 2 trials keeps runs "
-			    "of one category to max_run = 1");
+			    "of one category to longest_streak = 1");
 	diag_clear(&d);
 	teardown(&f);
 }
@@ -259,7 +259,7 @@ int main(void)
 {
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(plan_testReproducible),
-		cmocka_unit_test(plan_testMaxRun),
+		cmocka_unit_test(plan_testLongestStreak),
 		cmocka_unit_test(plan_testImpossibleRun),
 		cmocka_unit_test(plan_testFixedAndFilters),
 		cmocka_unit_test(plan_testFramesAndDuration),

@@ -12,7 +12,7 @@ static const char *good =
 	"[experiment]\n"
 	"name = t1\n"
 	"list = lists/s.csv\n"
-	"[choices]\n"
+	"[categories]\n"
 	"a = f\n"
 	"b = J\n"
 	"[timing]\n"
@@ -27,7 +27,7 @@ static const char *good =
 	"[block main]\n"
 	"repeats = 2\n"
 	"order = fixed\n"
-	"max_run = 3\n";
+	"longest_streak = 3\n";
 
 /* Text of diagnostic I, formatted as the user sees it. */
 static const char *msg(const struct diag_list *d, size_t i)
@@ -82,9 +82,9 @@ static void protocol_testAllProblems(void **state)
 		"[experiment]\n"                 /* 1 */
 		"list = s.csv\n"                  /* 2 */
 		"lsit = t.csv\n"                  /* 3 unknown key, suggestion */
-		"[choices]\n"                     /* 4 */
+		"[categories]\n"                  /* 4 */
 		"a = f\n"                         /* 5 */
-		"b = f\n"                         /* 6 two choices on one key */
+		"b = f\n"                         /* 6 two categories on one key */
 		"c =\n"                           /* 7 category with no key */
 		"[timing]\n"                      /* 8 */
 		"stimulus_ms = 0\n"               /* 9 out of range */
@@ -106,7 +106,7 @@ static void protocol_testAllProblems(void **state)
 		"p.ini:3: error: unknown key 'lsit' in [experiment]; did you mean 'list'?",
 		"p.ini:6: error: categories 'a' and 'b' share the key 'f' (line 5)",
 		"p.ini:7: error: category 'c' has no key",
-		"p.ini:4: error: [choices] names 1 category; a forced choice needs at least 2",
+		"p.ini:4: error: [categories] names 1 category; a forced choice needs at least 2",
 		"p.ini:9: error: stimulus_ms = 0 is out of range (above 0, up to 60000 ms)",
 		"p.ini:10: error: mask_ms = fast is not a number of ms",
 		"p.ini:11: error: duplicate key 'mask_ms' (first set on line 10)",
@@ -122,6 +122,44 @@ static void protocol_testAllProblems(void **state)
 	for (size_t i = 0; i < nwant && i < d.n; i++)
 		assert_string_equal(msg(&d, i), want[i]);
 	assert_int_equal(d.n, nwant);
+	protocol_clear(&p);
+	diag_clear(&d);
+}
+
+/* [categories] and longest_streak by their names; the words earlier versions used ([choices],
+ * max_run) are errors naming the new word, and the old section is still read (one message). */
+static void protocol_testRetiredWords(void **state)
+{
+	(void)state;
+	struct protocol p;
+	struct diag_list d;
+	diag_init(&d);
+	assert_int_equal(protocol_parse("dir/t.ini", good, &p, &d), 0);
+	assert_int_equal(p.blocks[1].longest_streak, 3);
+	protocol_clear(&p);
+	const char *text =
+		"[experiment]\n"                 /* 1 */
+		"list = s.csv\n"                  /* 2 */
+		"[choices]\n"                     /* 3 */
+		"a = f\n"                         /* 4 */
+		"b = j\n"                         /* 5 */
+		"[timing]\n"                      /* 6 */
+		"stimulus_ms = 100\n"             /* 7 */
+		"[display]\n"                     /* 8 */
+		"size_deg = 4\n"                  /* 9 */
+		"[block main]\n"                  /* 10 */
+		"max_run = 2\n";                  /* 11 */
+	assert_int_equal(protocol_parse("o.ini", text, &p, &d), -1);
+	const char *want[] = {
+		"o.ini:3: error: [choices] is now called [categories]: rename the section",
+		"o.ini:11: error: 'max_run' is now called 'longest_streak': rename the key",
+	};
+	size_t nwant = sizeof want / sizeof want[0];
+	for (size_t i = 0; i < nwant && i < d.n; i++)
+		assert_string_equal(msg(&d, i), want[i]);
+	assert_int_equal(d.n, nwant);
+	assert_int_equal(p.nchoices, 2);   /* read under the new name */
+	assert_int_equal(p.blocks[0].longest_streak, 0);
 	protocol_clear(&p);
 	diag_clear(&d);
 }
@@ -194,6 +232,7 @@ int main(void)
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(protocol_testGood),
 		cmocka_unit_test(protocol_testAllProblems),
+		cmocka_unit_test(protocol_testRetiredWords),
 		cmocka_unit_test(protocol_testMissingSections),
 		cmocka_unit_test(protocol_testAdaptiveReference),
 		cmocka_unit_test(protocol_testLoadMissingFile),

@@ -16,7 +16,7 @@
 static const char *head =
 	"[experiment]\n"
 	"list = s.csv\n"
-	"[choices]\n"
+	"[categories]\n"
 	"a = f\n"
 	"b = j\n"
 	"c = k\n"
@@ -134,8 +134,8 @@ static void protocol_adaptive_testQuestDefaults(void **state)
 	assert_int_equal(s->base.axis, ADAPT_AXIS_LOG);      /* default */
 	assert_false(s->base.easier_lower);                  /* default: higher is easier */
 	assert_true(s->base.beta == 3.5 && s->base.delta == 0.01);   /* Watson & Pelli 1983 */
-	assert_true(s->base.prior_sd == 0.5 && s->base.grain == 0.01);
-	assert_int_equal(s->base.place, ADAPT_PLACE_MEAN);
+	assert_true(s->base.prior_sd == 0.5 && s->base.grid_step == 0.01);
+	assert_int_equal(s->base.test_at, ADAPT_TEST_AT_MEAN);
 	assert_false(s->has_floor || s->has_ceiling);
 	assert_true(isnan(s->base.floor));
 	/* γ = 1/m with the protocol's 3 choices */
@@ -194,6 +194,58 @@ static void protocol_adaptive_testBadValues(void **state)
 	       "step = 0.1\n"
 	       "trials = 10\n",
 	       -1, "t.ini:16: error: start = 0: levels on a log axis must be above 0\n");
+}
+
+/* The QUEST keys by their names: grid_step, test_at (mean, peak, percentile) and percentile. */
+static void protocol_adaptive_testQuestKeys(void **state)
+{
+	(void)state;
+	char *text = with("[adaptive stairs]\n"
+			  "rule = quest\n"
+			  "prior_mean = 0.1\n"
+			  "trials = 40\n"
+			  "grid_step = 0.02\n"
+			  "test_at = percentile\n"
+			  "percentile = 0.25\n");
+	struct protocol p;
+	struct diag_list d;
+	diag_init(&d);
+	assert_int_equal(protocol_parse("t.ini", text, &p, &d), 0);
+	assert_int_equal(d.n, 0);
+	const struct adapt_spec *s = adapt_spec_find(p.adaptive, p.nadaptive, "stairs");
+	assert_non_null(s);
+	assert_true(s->base.grid_step == 0.02);
+	assert_int_equal(s->base.test_at, ADAPT_TEST_AT_PERCENTILE);
+	assert_true(s->base.percentile == 0.25);
+	protocol_clear(&p);
+	diag_clear(&d);
+	free(text);
+	expect("[adaptive stairs]\nrule = quest\nprior_mean = 0.1\ntrials = 40\ntest_at = peak\n",
+	       0, "");
+	expect("[adaptive stairs]\nrule = quest\nprior_mean = 0.1\ntrials = 40\n"
+	       "test_at = mode\n",   /* 18 */
+	       -1, "t.ini:18: error: test_at = mode is not one of mean, peak, percentile\n");
+	expect("[adaptive stairs]\nrule = quest\nprior_mean = 0.1\ntrials = 40\n"
+	       "percentile = 0.3\n",   /* 18 */
+	       0, "t.ini:18: warning: percentile applies only with test_at = percentile and is "
+	       "ignored\n");
+}
+
+/* The words earlier versions used are errors that name the new word, at their line. */
+static void protocol_adaptive_testRetiredWords(void **state)
+{
+	(void)state;
+	expect("[adaptive stairs]\n"           /* 14 */
+	       "rule = quest\n"                /* 15 */
+	       "prior_mean = 0.1\n"            /* 16 */
+	       "trials = 40\n"                 /* 17 */
+	       "grain = 0.02\n"                /* 18 */
+	       "place = quantile\n"            /* 19 */
+	       "quantile = 0.25\n",            /* 20 */
+	       -1,
+	       "t.ini:18: error: 'grain' is now called 'grid_step': rename the key\n"
+	       "t.ini:19: error: 'place' is now called 'test_at': rename the key\n"
+	       "t.ini:20: error: 'quantile' is now called 'percentile': rename the key\n");
 }
 
 static void protocol_adaptive_testMissingAndMisplaced(void **state)
@@ -271,7 +323,7 @@ static void protocol_adaptive_testBlockKeysIgnored(void **state)
 	(void)state;
 	char *text = with("repeats = 2\n"                /* block main, line 14 */
 			  "repeat_faults = yes\n"
-			  "max_run = 3\n"
+			  "longest_streak = 3\n"
 			  "[adaptive stairs]\n"
 			  "rule = quest\n"
 			  "prior_mean = 1\n"
@@ -286,7 +338,7 @@ static void protocol_adaptive_testBlockKeysIgnored(void **state)
 			    "blocks (every trial counts for its staircase as shown)\n"
 			    "t.ini:11: warning: block 'main': repeats does not apply to adaptive blocks "
 			    "(the rule's trials sets the length)\n"
-			    "t.ini:11: warning: block 'main': order and max_run do not apply to adaptive "
+			    "t.ini:11: warning: block 'main': order and longest_streak do not apply to adaptive "
 			    "blocks (staircases take turns in random rounds)\n");
 	free(msgs);
 	free(text);
@@ -300,6 +352,8 @@ int main(void)
 		cmocka_unit_test(protocol_adaptive_testUpDown),
 		cmocka_unit_test(protocol_adaptive_testQuestDefaults),
 		cmocka_unit_test(protocol_adaptive_testBadValues),
+		cmocka_unit_test(protocol_adaptive_testQuestKeys),
+		cmocka_unit_test(protocol_adaptive_testRetiredWords),
 		cmocka_unit_test(protocol_adaptive_testMissingAndMisplaced),
 		cmocka_unit_test(protocol_adaptive_testWholeFile),
 		cmocka_unit_test(protocol_adaptive_testBlockKeysIgnored),

@@ -21,7 +21,7 @@ static void load_protocol(struct protocol *p)
 {
 	struct diag_list d;
 	diag_init(&d);
-	const char *t = "[experiment]\nlist = s.csv\n[choices]\nring = f\nbar = j\n[timing]\n"
+	const char *t = "[experiment]\nlist = s.csv\n[categories]\nring = f\nbar = j\n[timing]\n"
 			"stimulus_ms = 200\n[display]\nsize_deg = 2\n[block b]\n";
 	assert_int_equal(protocol_parse("p.ini", t, p, &d), 0);
 	diag_clear(&d);
@@ -82,7 +82,7 @@ static void stimlist_testProblems(void **state)
 	diag_init(&d);
 	assert_int_equal(stimlist_parse("s.csv", csv, strlen(csv), &p, &l, &d), -1);
 	const char *want[] = {
-		"s.csv:3: error: category 'rnig' is not one of the protocol's choices (ring, bar); did "
+		"s.csv:3: error: category 'rnig' is not one of the protocol's categories (ring, bar); did "
 		"you mean 'ring'?",
 		"s.csv:4: error: level 'high' is not a number",
 		"s.csv:5: error: empty cell in column 'image'",

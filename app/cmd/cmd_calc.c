@@ -204,8 +204,12 @@ static int calc_ci(const struct calc_args *a, struct calc_out *o)
 		return -1;
 	}
 	double level = a->text[3] ? a->num[3] : 0.95, lo, hi;
-	if (stats_ci(meth, (unsigned long)k, (unsigned long)n, level, &lo, &hi) < 0) {
+	if (!(level > 0 && level < 1)) {
 		fprintf(stderr, "tachist calc: --level must lie between 0 and 1\n");
+		return -1;
+	}
+	if (stats_ci(meth, (unsigned long)k, (unsigned long)n, level, &lo, &hi) < 0) {
+		fprintf(stderr, "tachist calc: the interval for %ld of %ld could not be computed\n", k, n);
 		return -1;
 	}
 	put(o, "lower", lo, 0);

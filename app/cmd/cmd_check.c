@@ -47,7 +47,7 @@ static int cmp_path(const void *a, const void *b)
 	return c ? c : (x->i > y->i) - (x->i < y->i);
 }
 
-static void probe_images(const struct stimlist *l, struct image_summary *sum,
+static void probe_images(const struct stimlist *l, long max_side, struct image_summary *sum,
 			 struct diag_list *d, int **w_out, int **h_out)
 {
 	struct by_path *sorted = xmalloc((l->n ? l->n : 1) * sizeof *sorted);
@@ -70,7 +70,7 @@ static void probe_images(const struct stimlist *l, struct image_summary *sum,
 		}
 		struct image_info info;
 		char err[512];
-		if (image_probe(s->path, &info, err, sizeof err)) {
+		if (image_probe_max(s->path, max_side, &info, err, sizeof err)) {
 			diag_add(d, DIAG_ERROR, l->path, s->line, "image '%s': %s", s->image, err);
 			continue;
 		}
@@ -207,7 +207,7 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 	       geom_px_per_deg(r));
 	printf("stimulus  %g deg -> %d px = %.3f deg\n", p->size_deg, pl->stim_px,
 	       pl->stim_deg_actual);
-	printf("choices  ");
+	printf("categories");
 	for (size_t i = 0; i < p->nchoices; i++)
 		printf(" %s=%s", p->choices[i].category, p->choices[i].key);
 	printf("\n\n%-10s %9s %7s %10s\n", "epoch", "ms", "frames", "actual ms");
@@ -218,8 +218,8 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 			printf("%-10s %9g %7d %10.1f\n", epoch_name((enum epoch)e), p->epoch_ms[e],
 			       pl->epoch_frames[e], pl->epoch_actual_ms[e]);
 	}
-	printf("\n%-3s %-16s %7s %-8s %-7s %7s %-8s %s\n", "#", "block", "trials", "practice",
-	       "order", "max_run", "feedback", "conditions");
+	printf("\n%-3s %-16s %7s %-8s %-7s %14s %-8s %s\n", "#", "block", "trials", "practice",
+	       "order", "longest_streak", "feedback", "conditions");
 	for (size_t b = 0; b < pl->nblocks; b++) {
 		const struct protocol_block *pb = &p->blocks[pl->blocks[b].proto_block];
 		size_t nl, nc;
@@ -237,9 +237,9 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 		else
 			snprintf(cond, sizeof cond, "%zu level%s x %zu categor%s = %zu", nl ? nl : 1,
 				 nl == 1 || !nl ? "" : "s", nc, nc == 1 ? "y" : "ies", (nl ? nl : 1) * nc);
-		printf("%-3zu %-16s %7zu %-8s %-7s %7d %-8s %s\n", b + 1, pb->name,
+		printf("%-3zu %-16s %7zu %-8s %-7s %14d %-8s %s\n", b + 1, pb->name,
 		       pl->blocks[b].ntrials, pb->practice ? "yes" : "no",
-		       pb->order == ORDER_RANDOM ? "random" : "fixed", pb->max_run,
+		       pb->order == ORDER_RANDOM ? "random" : "fixed", pb->longest_streak,
 		       pb->feedback ? "yes" : "no", cond);
 	}
 	long secs = lround(pl->est_seconds);
@@ -286,7 +286,7 @@ static cJSON *json_doc(const struct protocol *p, const struct rig *r, const stru
 	cJSON_AddNumberToObject(sj, "size_deg", p->size_deg);
 	cJSON_AddNumberToObject(sj, "pixels", pl->stim_px);
 	cJSON_AddNumberToObject(sj, "degrees_actual", pl->stim_deg_actual);
-	cJSON *ch = cJSON_AddArrayToObject(j, "choices");
+	cJSON *ch = cJSON_AddArrayToObject(j, "categories");
 	for (size_t i = 0; i < p->nchoices; i++) {
 		cJSON *o = cJSON_CreateObject();
 		cJSON_AddStringToObject(o, "category", p->choices[i].category);
@@ -312,7 +312,7 @@ static cJSON *json_doc(const struct protocol *p, const struct rig *r, const stru
 		cJSON_AddNumberToObject(o, "trials", (double)pl->blocks[b].ntrials);
 		cJSON_AddBoolToObject(o, "practice", pb->practice);
 		cJSON_AddStringToObject(o, "order", pb->order == ORDER_RANDOM ? "random" : "fixed");
-		cJSON_AddNumberToObject(o, "max_run", pb->max_run);
+		cJSON_AddNumberToObject(o, "longest_streak", pb->longest_streak);
 		cJSON_AddBoolToObject(o, "feedback", pb->feedback);
 		cJSON_AddBoolToObject(o, "repeat_faults", pb->repeat_faults);
 		if (pb->adaptive)
@@ -392,11 +392,12 @@ int cmd_check(int argc, char **argv)
 	} else if (p.stimuli) {
 		list_ok = stimlist_load(p.stimuli, p.nchoices ? &p : NULL, &l, &d) == 0;
 		struct image_summary sum = {0};
-		probe_images(&l, &sum, &d, &w, &h);
+		long max_side = rig_ok ? r.max_image_side : 0;
+		probe_images(&l, max_side, &sum, &d, &w, &h);
 		if (p.mask == MASK_IMAGE && p.mask_image) {
 			struct image_info info;
 			char err[512];
-			if (image_probe(p.mask_image, &info, err, sizeof err))
+			if (image_probe_max(p.mask_image, max_side, &info, err, sizeof err))
 				diag_add(&d, DIAG_ERROR, p.path, p.mask_image_line, "mask_image: %s", err);
 		}
 	}

@@ -60,8 +60,9 @@ static void print_levels(const char *db, const char *id)
 	}
 	free(err);
 	store_close(st);
-	printf("\nmore: tachist report --db %s --session %.8s    tachist export --db %s --format csv "
-	       "--session %.8s --out demo.csv\n", db, id, db, id);
+	printf("\nmore:\n  tachist report --db %s --session %.8s\n"
+	       "  tachist export --db %s --format csv --session %.8s --out demo.csv\n",
+	       db, id, db, id);
 }
 
 int cmd_demo(int argc, char **argv)

@@ -4,6 +4,8 @@
 #include <string.h>
 #include <unistd.h>
 
+#include <gsl/gsl_errno.h>
+
 #include "cmd.h"
 #include "version.h"
 
@@ -81,6 +83,8 @@ static void print_help(FILE *out)
 
 int main(int argc, char **argv)
 {
+	/* GSL's default handler aborts the process; every GSL call's status is checked instead. */
+	gsl_set_error_handler_off();
 	if (argc < 2) {
 		if (isatty(STDIN_FILENO) && isatty(STDOUT_FILENO)) {
 			char *cargv[] = {"console", NULL};

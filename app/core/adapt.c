@@ -27,7 +27,7 @@
 
 #include "diag.h"
 
-/* Largest QUEST grid accepted; with the default grain of 0.01 this is 200 log units. */
+/* Largest QUEST grid accepted; with the default grid_step of 0.01 this is 200 log units. */
 #define QUEST_MAX_GRID 20001
 
 struct adapt_stair {
@@ -59,9 +59,9 @@ void adapt_params_default(struct adapt_params *p)
 	p->delta = 0.01;
 	p->gamma = 0.5;
 	p->prior_sd = 0.5;
-	p->grain = 0.01;
-	p->place = ADAPT_PLACE_MEAN;
-	p->quantile = 0.5;
+	p->grid_step = 0.01;
+	p->test_at = ADAPT_TEST_AT_MEAN;
+	p->percentile = 0.5;
 	p->floor = NAN;
 	p->ceiling = NAN;
 }
@@ -146,12 +146,13 @@ int adapt_params_check(const struct adapt_params *p, char *why, size_t len)
 			BAD("gamma must be in (0, 1)");
 		if (!(p->prior_sd > 0))
 			BAD("the prior SD must be above 0");
-		if (!(p->grain > 0))
+		if (!(p->grid_step > 0))
 			BAD("the grid spacing must be above 0");
-		if (p->place == ADAPT_PLACE_QUANTILE && !(p->quantile > 0 && p->quantile < 1))
-			BAD("the quantile must be in (0, 1)");
+		if (p->test_at == ADAPT_TEST_AT_PERCENTILE &&
+		    !(p->percentile > 0 && p->percentile < 1))
+			BAD("the percentile must be in (0, 1)");
 		if (!(p->grid_hi > p->grid_lo) ||
-		    (p->grid_hi - p->grid_lo) / p->grain + 1 > QUEST_MAX_GRID)
+		    (p->grid_hi - p->grid_lo) / p->grid_step + 1 > QUEST_MAX_GRID)
 			BAD("the posterior grid is empty or larger than %d points", QUEST_MAX_GRID);
 		if (p->stop_sd < 0)
 			BAD("the stopping SD must not be negative");
@@ -190,12 +191,12 @@ struct adapt_stair *adapt_stair_create(const struct adapt_params *p)
 	s->step_down = p->step_down;
 	s->step_up = p->step_up;
 	if (p->rule == ADAPT_QUEST) {
-		s->ngrid = (size_t)floor((p->grid_hi - p->grid_lo) / p->grain + 1e-9) + 1;
+		s->ngrid = (size_t)floor((p->grid_hi - p->grid_lo) / p->grid_step + 1e-9) + 1;
 		s->grid = xmalloc(s->ngrid * sizeof *s->grid);
 		s->logpost = xmalloc(s->ngrid * sizeof *s->logpost);
 		double m = s->x, sd = p->prior_sd;
 		for (size_t i = 0; i < s->ngrid; i++) {
-			double a_i = p->grid_lo + (double)i * p->grain;
+			double a_i = p->grid_lo + (double)i * p->grid_step;
 			s->grid[i] = p->easier_lower ? -a_i : a_i;
 			double z = (s->grid[i] - m) / sd;
 			s->logpost[i] = -0.5 * z * z;   /* Gaussian prior (Watson & Pelli 1983) */
@@ -259,15 +260,15 @@ static void quest_moments(const struct adapt_stair *s, double *w, double *mean, 
 }
 
 /* The strength value where QUEST places its next trial. */
-static double quest_place(const struct adapt_stair *s)
+static double quest_test_level(const struct adapt_stair *s)
 {
 	double *w = xmalloc(s->ngrid * sizeof *w), mean, sd, x = 0;
 	quest_moments(s, w, &mean, &sd);
-	switch (s->p.place) {
-	case ADAPT_PLACE_MEAN:
+	switch (s->p.test_at) {
+	case ADAPT_TEST_AT_MEAN:
 		x = mean;
 		break;
-	case ADAPT_PLACE_MODE: {
+	case ADAPT_TEST_AT_PEAK: {
 		size_t best = 0;
 		for (size_t i = 1; i < s->ngrid; i++)
 			if (s->logpost[i] > s->logpost[best])
@@ -275,8 +276,8 @@ static double quest_place(const struct adapt_stair *s)
 		x = s->grid[best];
 		break;
 	}
-	case ADAPT_PLACE_QUANTILE: {
-		/* The quantile along increasing strength; the grid runs the other way when lower
+	case ADAPT_TEST_AT_PERCENTILE: {
+		/* The percentile along increasing strength; the grid runs the other way when lower
 		 * levels are easier. */
 		double c = 0;
 		x = s->grid[0];
@@ -284,7 +285,7 @@ static double quest_place(const struct adapt_stair *s)
 			size_t i = s->p.easier_lower ? s->ngrid - 1 - k : k;
 			c += w[i];
 			x = s->grid[i];
-			if (c >= s->p.quantile)
+			if (c >= s->p.percentile)
 				break;
 		}
 		break;
@@ -296,7 +297,7 @@ static double quest_place(const struct adapt_stair *s)
 
 double adapt_stair_next(const struct adapt_stair *s)
 {
-	double x = s->p.rule == ADAPT_QUEST ? quest_place(s) : s->x;
+	double x = s->p.rule == ADAPT_QUEST ? quest_test_level(s) : s->x;
 	x = fmin(fmax(x, s->lo), s->hi);
 	return from_strength(&s->p, x);
 }

@@ -249,9 +249,9 @@ static void block_trials(const struct protocol *p, const struct protocol_block *
 			k++;
 		}
 	if (b->order == ORDER_RANDOM &&
-	    shuffle_limited(t, n, b->max_run, p->nchoices ? p->nchoices : 1, rng)) {
+	    shuffle_limited(t, n, b->longest_streak, p->nchoices ? p->nchoices : 1, rng)) {
 		diag_add(d, DIAG_ERROR, p->path, b->line, "block '%s': no order of its %zu trials keeps "
-			 "runs of one category to max_run = %d", b->name, n, b->max_run);
+			 "runs of one category to longest_streak = %d", b->name, n, b->longest_streak);
 	}
 append:;
 	size_t first = pl->ntrials;

@@ -2,8 +2,10 @@
  *
  * Everything works on plain numbers and arrays the caller owns. The d′ integral is evaluated with
  * GSL's QAGI (the whole real line) and inverted with Brent's root finder; the intervals use GSL's
- * normal and beta quantiles. Error handling of GSL is switched off locally: a failed integration
- * returns NaN instead of aborting the program. */
+ * normal and beta quantiles; GSL's beta inverse gives up on some ordinary counts, so its answer is
+ * checked and a bracketing solver on the incomplete beta function takes over. Error handling of
+ * GSL is switched off locally (main also switches it off at start-up): a failed integration returns
+ * NaN and a failed interval -1 instead of aborting the program. */
 #include "stats.h"
 
 #include <math.h>
@@ -16,6 +18,7 @@
 #include <gsl/gsl_math.h>
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_roots.h>
+#include <gsl/gsl_sf_gamma.h>
 #include <gsl/gsl_sort.h>
 #include <gsl/gsl_statistics_double.h>
 
@@ -35,6 +38,63 @@ const char *stats_ci_method_name(enum stats_ci_method m)
 	return m == STATS_CI_EXACT ? "exact" : "wilson";
 }
 
+struct beta_root {
+	double p, a, b;
+};
+
+/* I_x(a, b) − p, or NaN when GSL reports an error (an underflow is a value of 0, not an error). */
+static double beta_root_fn(double x, void *vp)
+{
+	const struct beta_root *br = vp;
+	gsl_sf_result r;
+	int st = gsl_sf_beta_inc_e(br->a, br->b, x, &r);
+	if (st == GSL_EUNDRFLW)
+		r.val = 0.0;
+	else if (st != GSL_SUCCESS)
+		return NAN;
+	return r.val - br->p;
+}
+
+/* Bracketing fallback for beta_pinv: Brent's method on the regularized incomplete beta over
+ * [0, 1], where it rises from 0 to 1, to a relative width of 1e-14. Returns 0 or -1. */
+static int beta_pinv_bracket(double p, double a, double b, double *x)
+{
+	struct beta_root br = {p, a, b};
+	gsl_function f = {beta_root_fn, &br};
+	gsl_root_fsolver *s = gsl_root_fsolver_alloc(gsl_root_fsolver_brent);
+	int rc = gsl_root_fsolver_set(s, &f, 0.0, 1.0), status = GSL_CONTINUE;
+	for (int it = 0; rc == GSL_SUCCESS && status == GSL_CONTINUE && it < 500; it++) {
+		if (gsl_root_fsolver_iterate(s) != GSL_SUCCESS)
+			break;
+		status = gsl_root_test_interval(gsl_root_fsolver_x_lower(s),
+						gsl_root_fsolver_x_upper(s), 1e-300, 1e-14);
+	}
+	double root = gsl_root_fsolver_root(s);
+	gsl_root_fsolver_free(s);
+	if (status != GSL_SUCCESS || !(root >= 0 && root <= 1))
+		return -1;
+	*x = root;
+	return 0;
+}
+
+/* The P quantile of Beta(A, B) into *X. GSL's inverse first; it gives up ("failed to converge")
+ * for some ordinary arguments, for example P = 0.025, A = 2, B = 259, so an answer that is not a
+ * finite number in [0, 1] goes to the bracketing solver, which cannot fail on a continuous
+ * function with a sign change. GSL's error handler is off here whatever the caller set.
+ * Returns 0 or -1. */
+static int beta_pinv(double p, double a, double b, double *x)
+{
+	gsl_error_handler_t *old = gsl_set_error_handler_off();
+	double g = gsl_cdf_beta_Pinv(p, a, b);
+	int rc = 0;
+	if (isfinite(g) && g >= 0 && g <= 1)
+		*x = g;
+	else
+		rc = beta_pinv_bracket(p, a, b, x);
+	gsl_set_error_handler(old);
+	return rc;
+}
+
 int stats_ci(enum stats_ci_method method, unsigned long k, unsigned long n, double conf,
 	     double *lower, double *upper)
 {
@@ -50,9 +110,16 @@ int stats_ci(enum stats_ci_method method, unsigned long k, unsigned long n, doub
 		*lower = k == 0 ? 0.0 : fmax(0.0, centre - half);
 		*upper = k == n ? 1.0 : fmin(1.0, centre + half);
 	} else {
-		/* Clopper–Pearson: Beta(a/2; k, n−k+1) and Beta(1−a/2; k+1, n−k). */
-		*lower = k == 0 ? 0.0 : gsl_cdf_beta_Pinv(a / 2, (double)k, (double)(n - k + 1));
-		*upper = k == n ? 1.0 : gsl_cdf_beta_Qinv(a / 2, (double)(k + 1), (double)(n - k));
+		/* Clopper–Pearson: Beta(a/2; k, n−k+1) and Beta(1−a/2; k+1, n−k). The upper quantile is
+		 * taken from the mirrored distribution (Q(x; a, b) = P(1 − x; b, a)), so both ends go
+		 * through the one checked inverse below. */
+		double lo = 0.0, up = 0.0;
+		if (k > 0 && beta_pinv(a / 2, (double)k, (double)(n - k + 1), &lo) < 0)
+			return -1;
+		if (k < n && beta_pinv(a / 2, (double)(n - k), (double)(k + 1), &up) < 0)
+			return -1;
+		*lower = lo;
+		*upper = 1.0 - up;
 	}
 	return 0;
 }

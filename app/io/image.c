@@ -2,8 +2,11 @@
  *
  * SDL2_image decodes every format it supports to an SDL surface, which we convert to RGBA32 (bytes
  * R, G, B, A in memory). For PNG the stored bit depth and colour type come from the IHDR chunk,
- * since the decoder reduces 16-bit channels to 8 bits. Surfaces never leave this file. */
+ * since the decoder reduces 16-bit channels to 8 bits. Surfaces never leave this file. Every file's
+ * size is read from its header (imagehead.c) before the decoder sees it, and refused over the
+ * caller's limit: decoders allocate whatever a header claims. */
 #include "image.h"
+#include "imagehead.h"
 
 #include <stdio.h>
 #include <stdlib.h>
@@ -104,8 +107,33 @@ static void key_to_alpha(SDL_Surface *s, SDL_Surface *c)
 	SDL_UnlockSurface(s);
 }
 
-int image_load(const char *path, struct image *img, struct image_info *info, char *err,
-	       size_t errlen)
+/* Reads the size from the header of the open file F and refuses PATH when it is not an image we
+ * know, or is over MAX_SIDE. Returns 0 or -1 with ERR. */
+static int header_check(FILE *f, const char *path, long max_side, char *err, size_t errlen)
+{
+	struct imagehead h;
+	int rc = imagehead_read(f, &h);
+	if (rc == IMAGEHEAD_UNKNOWN) {
+		snprintf(err, errlen, "%s is not an image in a supported format", path);
+		return -1;
+	}
+	if (rc) {
+		snprintf(err, errlen, "%s cannot be decoded (its %s header gives no size)", path,
+			 h.format);
+		return -1;
+	}
+	if (max_side <= 0)
+		max_side = IMAGE_MAX_SIDE_DEFAULT;
+	if (h.width > max_side || h.height > max_side) {
+		snprintf(err, errlen, "%s is %ldx%ld px by its header, over the limit of %ld px a "
+			 "side; not decoded", path, h.width, h.height, max_side);
+		return -1;
+	}
+	return 0;
+}
+
+int image_load_max(const char *path, long max_side, struct image *img, struct image_info *info,
+		   char *err, size_t errlen)
 {
 	image_init();
 	memset(img, 0, sizeof *img);
@@ -115,6 +143,11 @@ int image_load(const char *path, struct image *img, struct image_info *info, cha
 		snprintf(err, errlen, "cannot open %s", path);
 		return -1;
 	}
+	if (header_check(f, path, max_side, err, errlen)) {
+		fclose(f);
+		return -1;
+	}
+	rewind(f);
 	int is_png = png_header(f, info) == 0;
 	fclose(f);
 	if (is_png && info->channels == 1 && info->alpha) {
@@ -173,13 +206,25 @@ int image_load(const char *path, struct image *img, struct image_info *info, cha
 	return 0;
 }
 
-int image_probe(const char *path, struct image_info *info, char *err, size_t errlen)
+int image_load(const char *path, struct image *img, struct image_info *info, char *err,
+	       size_t errlen)
+{
+	return image_load_max(path, 0, img, info, err, errlen);
+}
+
+int image_probe_max(const char *path, long max_side, struct image_info *info, char *err,
+		    size_t errlen)
 {
 	struct image img;
-	if (image_load(path, &img, info, err, errlen))
+	if (image_load_max(path, max_side, &img, info, err, errlen))
 		return -1;
 	image_free(&img);
 	return 0;
+}
+
+int image_probe(const char *path, struct image_info *info, char *err, size_t errlen)
+{
+	return image_probe_max(path, 0, info, err, errlen);
 }
 
 int image_save_png(const char *path, const struct image *img, char *err, size_t errlen)

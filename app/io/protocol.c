@@ -214,7 +214,7 @@ static const struct protocol_section experiment_section = {
 	NULL, protocol_base, NULL, experiment_close, NULL, NULL, NULL,
 };
 
-/* --- [choices]: CATEGORY = KEY ------------------------------------------------------------ */
+/* --- [categories]: CATEGORY = KEY --------------------------------------------------------- */
 
 /* Key names as SDL spells them, lower case, besides single letters, digits and punctuation. */
 static const char *const named_keys[] = {
@@ -234,7 +234,7 @@ static int key_name_ok(const char *k)
 	return 0;
 }
 
-static void choices_entry(struct protocol_ctx *c, int key_index, const char *category,
+static void categories_entry(struct protocol_ctx *c, int key_index, const char *category,
 			  const char *value, int line)
 {
 	(void)key_index;
@@ -287,15 +287,16 @@ static void choices_entry(struct protocol_ctx *c, int key_index, const char *cat
 	ch->line = line;
 }
 
-static void choices_close(struct protocol_ctx *c, int line)
+static void categories_close(struct protocol_ctx *c, int line)
 {
 	if (c->p->nchoices < 2)
-		protocol_ctx_error(c, line, "[choices] names %zu categor%s; a forced choice needs at "
+		protocol_ctx_error(c, line, "[categories] names %zu categor%s; a forced choice needs at "
 				   "least 2", c->p->nchoices, c->p->nchoices == 1 ? "y" : "ies");
 }
 
-static const struct protocol_section choices_section = {
-	"choices", 0, NULL, 0, NULL, protocol_base, choices_entry, choices_close, NULL, NULL, NULL,
+static const struct protocol_section categories_section = {
+	"categories", 0, NULL, 0, NULL, protocol_base, categories_entry, categories_close, NULL,
+	NULL, NULL,
 };
 
 /* --- [timing]: epoch durations in ms ------------------------------------------------------ */
@@ -358,8 +359,8 @@ static const struct protocol_section display_section = {
 
 static const char *const order_words[] = {"random", "fixed", NULL};
 
-enum { BK_SELECT, BK_REPEATS, BK_ORDER, BK_MAX_RUN, BK_PRACTICE, BK_FEEDBACK, BK_REPEAT_FAULTS,
-       BK_ADAPTIVE };
+enum { BK_SELECT, BK_REPEATS, BK_ORDER, BK_LONGEST_STREAK, BK_PRACTICE, BK_FEEDBACK,
+       BK_REPEAT_FAULTS, BK_ADAPTIVE };
 
 static const struct protocol_key block_keys[] = {
 	[BK_SELECT] = {"select", PTYPE_CUSTOM, 0, 0, 0, 0, NULL, 0, NULL,
@@ -368,8 +369,9 @@ static const struct protocol_key block_keys[] = {
 			NULL, 0, NULL, 0},
 	[BK_ORDER] = {"order", PTYPE_WORD, offsetof(struct protocol_block, order), 0, 0, 0,
 		      order_words, 0, NULL, 0},
-	[BK_MAX_RUN] = {"max_run", PTYPE_INT, offsetof(struct protocol_block, max_run), 0, 1000, 0,
-			NULL, 0, "trials", 0},
+	[BK_LONGEST_STREAK] = {"longest_streak", PTYPE_INT,
+			       offsetof(struct protocol_block, longest_streak), 0, 1000, 0, NULL, 0,
+			       "trials", 0},
 	[BK_PRACTICE] = {"practice", PTYPE_BOOL, offsetof(struct protocol_block, practice), 0, 0, 0,
 			 NULL, 0, NULL, 0},
 	[BK_FEEDBACK] = {"feedback", PTYPE_BOOL, offsetof(struct protocol_block, feedback), 0, 0, 0,
@@ -525,7 +527,7 @@ static const struct protocol_section block_section = {
 
 static const struct protocol_section *const sections[] = {
 	&experiment_section,
-	&choices_section,
+	&categories_section,
 	&timing_section,
 	&display_section,
 	&block_section,
@@ -554,8 +556,30 @@ static void block_finish(struct protocol_ctx *c)
 	}
 }
 
-/* [experiment], [choices], [timing] and [display]: the first rows of sections[]. */
+/* [experiment], [categories], [timing] and [display]: the first rows of sections[]. */
 #define NREQUIRED_PLAIN 4
+
+/* Words earlier versions of the protocol used, each an error naming the word that replaced it.
+ * KIND is the section the key belonged to; a NULL KIND marks a section name. */
+static const struct {
+	const char *kind, *old, *now;
+} retired[] = {
+	{NULL, "choices", "categories"},
+	{"block", "max_run", "longest_streak"},
+	{"adaptive", "grain", "grid_step"},
+	{"adaptive", "place", "test_at"},
+	{"adaptive", "quantile", "percentile"},
+};
+
+/* The replacement of OLD (a key of section KIND, or a section name when KIND is NULL), or NULL. */
+static const char *retired_word(const char *kind, const char *old)
+{
+	for (size_t i = 0; i < sizeof retired / sizeof retired[0]; i++)
+		if (!strcmp(retired[i].old, old) &&
+		    (kind ? retired[i].kind && !strcmp(retired[i].kind, kind) : !retired[i].kind))
+			return retired[i].now;
+	return NULL;
+}
 
 static void close_instance(struct protocol_ctx *c)
 {
@@ -586,6 +610,14 @@ static void open_section(struct protocol_ctx *c, const char *header, int line)
 	for (; k < NSECTIONS; k++)
 		if (!strcmp(sections[k]->kind, kind))
 			break;
+	/* An old section name is an error, but its lines are still read under the new name so the
+	 * file gets one message, not a second one for the section missing. */
+	const char *now = k == NSECTIONS ? retired_word(NULL, kind) : NULL;
+	if (now) {
+		protocol_ctx_error(c, line, "[%s] is now called [%s]: rename the section", kind, now);
+		for (k = 0; k < NSECTIONS && strcmp(sections[k]->kind, now); k++)
+			;
+	}
 	if (k == NSECTIONS) {
 		const char *kinds[NSECTIONS];
 		for (size_t i = 0; i < NSECTIONS; i++)
@@ -641,6 +673,11 @@ static void set_key(struct protocol_ctx *c, const char *key, const char *value, 
 	for (; i < s->nkeys; i++)
 		if (!strcmp(s->keys[i].name, key))
 			break;
+	const char *now = i == s->nkeys ? retired_word(s->kind, key) : NULL;
+	if (now) {
+		protocol_ctx_error(c, line, "'%s' is now called '%s': rename the key", key, now);
+		return;
+	}
 	if (i == s->nkeys) {
 		const char *names[32];
 		size_t n = s->nkeys < 32 ? s->nkeys : 32;

@@ -25,14 +25,14 @@
 enum {
 	AK_RULE, AK_AXIS, AK_EASIER, AK_START, AK_PRIOR_MEAN, AK_PER_CATEGORY, AK_TRIALS,
 	AK_REVERSALS, AK_DOWN, AK_STEP, AK_TARGET_PC, AK_HALVE_AFTER, AK_FLOOR, AK_CEILING,
-	AK_AVERAGE_LAST, AK_BETA, AK_DELTA, AK_PRIOR_SD, AK_GRAIN, AK_PLACE, AK_QUANTILE,
+	AK_AVERAGE_LAST, AK_BETA, AK_DELTA, AK_PRIOR_SD, AK_GRID_STEP, AK_TEST_AT, AK_PERCENTILE,
 	AK_STOP_SD, AK_COUNT
 };
 
 static const char *const rule_words[] = {"updown", "weighted", "quest", NULL};
 static const char *const axis_words[] = {"linear", "log", NULL};
 static const char *const easier_words[] = {"higher", "lower", NULL};
-static const char *const place_words[] = {"mean", "mode", "quantile", NULL};
+static const char *const test_at_words[] = {"mean", "peak", "percentile", NULL};
 
 #define OFF(field) offsetof(struct adapt_spec, field)
 
@@ -68,10 +68,11 @@ static const struct protocol_key adaptive_keys[AK_COUNT] = {
 	[AK_DELTA] = {"delta", PTYPE_NUMBER, OFF(base.delta), 0, 0.5, 0, NULL, 0, NULL, 0},
 	[AK_PRIOR_SD] = {"prior_sd", PTYPE_NUMBER, OFF(base.prior_sd), 0, 100, 1, NULL, 0,
 			 "log10 units", 0},
-	[AK_GRAIN] = {"grain", PTYPE_NUMBER, OFF(base.grain), 0.0001, 1, 0, NULL, 0, "log10 units",
-		      0},
-	[AK_PLACE] = {"place", PTYPE_WORD, OFF(base.place), 0, 0, 0, place_words, 0, NULL, 0},
-	[AK_QUANTILE] = {"quantile", PTYPE_NUMBER, OFF(base.quantile), 0, 1, 1, NULL, 0, NULL, 0},
+	[AK_GRID_STEP] = {"grid_step", PTYPE_NUMBER, OFF(base.grid_step), 0.0001, 1, 0, NULL, 0,
+			  "log10 units", 0},
+	[AK_TEST_AT] = {"test_at", PTYPE_WORD, OFF(base.test_at), 0, 0, 0, test_at_words, 0, NULL, 0},
+	[AK_PERCENTILE] = {"percentile", PTYPE_NUMBER, OFF(base.percentile), 0, 1, 1, NULL, 0, NULL,
+			   0},
 	[AK_STOP_SD] = {"stop_sd", PTYPE_NUMBER, OFF(base.stop_sd), 0, 100, 0, NULL, 0,
 			"log10 units", 0},
 };
@@ -271,8 +272,8 @@ static void adaptive_close(struct protocol_ctx *c, int header)
 		if (!protocol_ctx_key_line(c, AK_STEP))
 			protocol_ctx_error(c, header, "[adaptive %s]: rule = %s needs step (in axis "
 					   "units: log10 units on a log axis)", s->name, rule);
-		static const int skip[] = {AK_BETA, AK_DELTA, AK_PRIOR_SD, AK_GRAIN, AK_PLACE,
-					   AK_QUANTILE, AK_STOP_SD};
+		static const int skip[] = {AK_BETA, AK_DELTA, AK_PRIOR_SD, AK_GRID_STEP, AK_TEST_AT,
+					   AK_PERCENTILE, AK_STOP_SD};
 		for (size_t i = 0; i < sizeof skip / sizeof skip[0]; i++)
 			not_for_rule(c, skip[i], rule);
 		if (p->rule == ADAPT_WEIGHTED) {
@@ -295,9 +296,11 @@ static void adaptive_close(struct protocol_ctx *c, int header)
 					   p->threshold_reversals, p->stop_reversals);
 		}
 	}
-	if (p->place != ADAPT_PLACE_QUANTILE && protocol_ctx_key_line(c, AK_QUANTILE) && quest)
-		protocol_ctx_warning(c, protocol_ctx_key_line(c, AK_QUANTILE),
-				     "quantile applies only with place = quantile and is ignored");
+	if (p->test_at != ADAPT_TEST_AT_PERCENTILE && protocol_ctx_key_line(c, AK_PERCENTILE) &&
+	    quest)
+		protocol_ctx_warning(c, protocol_ctx_key_line(c, AK_PERCENTILE),
+				     "percentile applies only with test_at = percentile and is "
+				     "ignored");
 
 	/* Levels: above 0 on a log axis, floor below ceiling, starts inside. */
 	const char *what = quest ? "prior_mean" : "start";
@@ -374,8 +377,8 @@ static void adaptive_finish(struct protocol_ctx *c)
 			protocol_ctx_warning(c, pb->line, "block '%s': repeats does not apply to "
 					     "adaptive blocks (the rule's trials sets the length)",
 					     pb->name);
-		if (pb->order == ORDER_FIXED || pb->max_run > 0)
-			protocol_ctx_warning(c, pb->line, "block '%s': order and max_run do not apply "
+		if (pb->order == ORDER_FIXED || pb->longest_streak > 0)
+			protocol_ctx_warning(c, pb->line, "block '%s': order and longest_streak do not apply "
 					     "to adaptive blocks (staircases take turns in random "
 					     "rounds)", pb->name);
 	}

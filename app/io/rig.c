@@ -1,6 +1,7 @@
 /* rig — the rig profile: an INI file (inih through inifile.c) describing the observer's display.
  *
- *   [screen]  name, width_cm, height_cm, width_px, height_px, distance_cm, refresh_hz, display
+ *   [screen]  name, width_cm, height_cm, width_px, height_px, distance_cm, refresh_hz, display,
+ *             max_image_side
  *   [marker]  corner (none|top-left|top-right|bottom-left|bottom-right), size_px
  *   [luminance] the photometer calibration, read by rig_lum.c
  *
@@ -16,6 +17,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "image.h"
 #include "inifile.h"
 #include "rig_lum.h"
 #include "suggest.h"
@@ -45,6 +47,7 @@ static const struct rig_key keys[] = {
 	{"screen", "display", RT_INT, offsetof(struct rig, display), 0, 15, 0, 0, NULL},
 	{"marker", "corner", RT_CORNER, offsetof(struct rig, marker_corner), 0, 0, 0, 0, NULL},
 	{"marker", "size_px", RT_INT, offsetof(struct rig, marker_px), 1, 500, 0, 0, "px"},
+	{"screen", "max_image_side", RT_INT, offsetof(struct rig, max_image_side), 16, 65535, 0, 0, "px"},
 };
 #define NKEYS (sizeof keys / sizeof keys[0])
 _Static_assert(NKEYS > K_SIZE_PX, "keys[] rows K_CORNER and K_SIZE_PX");
@@ -195,6 +198,7 @@ int rig_parse(const char *path, const char *text, struct rig *r, struct diag_lis
 	r->path = path ? xstrdup(path) : NULL;
 	r->text = xstrdup(text);
 	r->marker_px = 40;
+	r->max_image_side = (int)IMAGE_MAX_SIDE_DEFAULT;
 	size_t errors0 = diag_count(d, DIAG_ERROR);
 	struct rig_ctx c = {.r = r, .file = path, .d = d, .outside = 1};
 	inifile_parse(path, text, on_entry, &c, d);

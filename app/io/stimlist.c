@@ -171,10 +171,10 @@ static void data_row(struct lctx *c)
 			const char *near = suggest_nearest(category, names, c->p->nchoices);
 			if (near)
 				diag_add(c->d, DIAG_ERROR, c->file, line, "category '%s' is not one of the "
-					 "protocol's choices (%s); did you mean '%s'?", category, list, near);
+					 "protocol's categories (%s); did you mean '%s'?", category, list, near);
 			else
 				diag_add(c->d, DIAG_ERROR, c->file, line, "category '%s' is not one of the "
-					 "protocol's choices (%s)", category, list);
+					 "protocol's categories (%s)", category, list);
 			bad = 1;
 		}
 	}

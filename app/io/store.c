@@ -930,7 +930,7 @@ int store_event(struct store *s, const char *session_id, const char *kind, const
 
 /* ---- trials: write ---- */
 
-/* JSON text of the protocol's choices: [{"category": C, "key": K}, ...]. Caller frees. */
+/* JSON text of the protocol's categories: [{"category": C, "key": K}, ...]. Caller frees. */
 static char *choices_json(const struct protocol *p)
 {
 	cJSON *a = cJSON_CreateArray();

@@ -25,7 +25,7 @@ cat >"$P" <<PROTO
 [experiment]
 name = adaptive-e2e
 list = $A/stimuli.csv
-[choices]
+[categories]
 ring = s
 bar = d
 cross = f

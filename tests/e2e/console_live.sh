@@ -12,7 +12,7 @@ cat > "$WORK/long.ini" <<INI
 name = long
 list = $ROOT/assets-demo/stimuli.csv
 
-[choices]
+[categories]
 ring = s
 bar = d
 cross = f

@@ -13,7 +13,7 @@ cat > "$WORK/quick.ini" <<INI
 name = quick
 list = $ROOT/assets-demo/stimuli.csv
 
-[choices]
+[categories]
 ring = s
 bar = d
 cross = f

@@ -4,10 +4,13 @@ set -u
 TACHIST=${TACHIST:-$(pwd)/build/san/tachist}
 ROOT=$(pwd)
 WORK=$(mktemp -d "${TMPDIR:-/tmp}/tachist-e2e.XXXXXX")
-trap 'rm -rf "$WORK"' EXIT
+USERDIR=
+trap 'rm -rf "$WORK" ${USERDIR:+"$USERDIR"}' EXIT
 export SDL_VIDEODRIVER=${SDL_VIDEODRIVER:-dummy}
 ok()    { echo "ok - $*"; }
 notok() { echo "not ok - $*"; }
+# skip NAME REASON: a check not made here, counted apart by tests/run.sh (never as a pass)
+skip()  { echo "ok - $1 # SKIP $2"; }
 # check NAME COMMAND...: ok when the command succeeds
 check() { name=$1; shift; if "$@"; then ok "$name"; else notok "$name"; fi; }
 # expect_eq NAME EXPECTED ACTUAL: ok when equal, else prints both
@@ -27,7 +30,7 @@ cat >"$1" <<PROTO
 [experiment]
 name = e2e
 list = $2
-[choices]
+[categories]
 ring = s
 bar = d
 cross = f
@@ -55,4 +58,33 @@ practice = yes
 select = exemplar=2
 repeat_faults = yes
 PROTO
+}
+
+# Checks that need another user. Root ignores permission bits, so as root as_user runs COMMAND as
+# nobody; otherwise as ourselves. Nobody may not reach the checkout or $WORK (a clone in a mode-700
+# home, a private TMPDIR), so user_scratch makes $USERDIR: a mode-755 folder nobody can enter, in
+# the first of $TMPDIR, /tmp, /var/tmp, /dev/shm that works, holding copies of the binary
+# ($USERDIR/tachist), the leak suppressions and a temporary folder ($TMPDIR for that user, which
+# may not reach ours). Copy there whatever else that user must read.
+# Returns 1 (with $USERDIR empty) when there is no such folder; the caller then skips its checks.
+as_user() {
+  if [ "$(id -u)" = 0 ]; then
+    setpriv --reuid=65534 --regid=65534 --clear-groups \
+      env LSAN_OPTIONS="suppressions=$USERDIR/lsan.supp:print_suppressions=0" TMPDIR="$USERDIR/tmp" "$@"
+  else
+    "$@"
+  fi
+}
+user_scratch() {
+  for base in "${TMPDIR:-/tmp}" /tmp /var/tmp /dev/shm; do
+    d=$(mktemp -d "$base/tachist-user.XXXXXX" 2>/dev/null) || continue
+    chmod 755 "$d"; USERDIR=$d
+    mkdir -m 1777 "$d/tmp" || { rm -rf "$d"; USERDIR=; continue; }
+    if as_user test -x "$d"; then
+      cp "$TACHIST" "$d/tachist" && cp "$ROOT/tests/lsan.supp" "$d/lsan.supp" &&
+        chmod 755 "$d/tachist" && chmod 644 "$d/lsan.supp" && return 0
+    fi
+    rm -rf "$d"; USERDIR=
+  done
+  return 1
 }

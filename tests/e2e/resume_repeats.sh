@@ -10,7 +10,7 @@ cat >"$WORK/p.ini" <<PROTO
 [experiment]
 name = repeats
 list = $A/stimuli.csv
-[choices]
+[categories]
 ring = s
 bar = d
 cross = f

@@ -139,3 +139,4 @@ expect_exit "run without a subject" 2 "$TACHIST" run "$P"
 expect_exit "timing --headless exits 0" 0 "$TACHIST" timing --headless --rig "$WORK/rig.ini" --frames 200
 check "timing estimates 60 Hz" grep -q 'estimated rate: 60.000 Hz' "$WORK/last.out"
 check "timing prints a histogram" grep -q '^ *16\.[0-9]*- *16\.[0-9]* *199 #' "$WORK/last.out"
+check "timing --headless says nothing about time inside present" sh -c "! grep -qi 'present' '$WORK/last.out'"

@@ -66,7 +66,7 @@ EOF
 "$TACHIST" stimuli audit "$ROOT/assets-demo/stimuli.csv" --protocol "$ROOT/protocols/demo.ini" --rig "$ROOT/assets-demo/rig.ini" >"$WORK/demo.out" 2>&1
 check "the protocol's size_deg is used" grep -q "at 1.75 deg the rig shows" "$WORK/demo.out"
 sed 's/^\(img\/ring_1_n0.png\),ring/\1,rng/' "$ROOT/assets-demo/stimuli.csv" >"$WORK/demo-typo.csv"
-expect_exit "a category outside the protocol's choices exits 1" 1 "$TACHIST" stimuli audit "$WORK/demo-typo.csv" --protocol "$ROOT/protocols/demo.ini"
+expect_exit "a category outside the protocol's categories exits 1" 1 "$TACHIST" stimuli audit "$WORK/demo-typo.csv" --protocol "$ROOT/protocols/demo.ini"
 check "the category is named with FILE:LINE" grep -q "demo-typo.csv:2: error: category 'rng'" "$WORK/last.err"
 expect_exit "--protocol and --size-deg together are a usage error" 2 "$TACHIST" stimuli audit "$SET/list.csv" --protocol "$ROOT/protocols/demo.ini" --size-deg 2
 

@@ -13,9 +13,9 @@
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 
 static const char *proto_text =
-	"[experiment]\nlist = s.csv\n[choices]\nring = f\nbar = j\nx = k\n[timing]\n"
+	"[experiment]\nlist = s.csv\n[categories]\nring = f\nbar = j\nx = k\n[timing]\n"
 	"stimulus_ms = 100\n[display]\nsize_deg = 3\n"
-	"[block a]\nselect = level=0,1 & note=q\nmax_run = 2\n[block b]\norder = fixed\n";
+	"[block a]\nselect = level=0,1 & note=q\nlongest_streak = 2\n[block b]\norder = fixed\n";
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {
