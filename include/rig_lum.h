@@ -17,7 +17,9 @@
 #ifndef TACHIST_RIG_LUM_H
 #define TACHIST_RIG_LUM_H
 
+#include <stdbool.h>
 #include <stddef.h>
+#include <stdint.h>
 
 #include "diag.h"
 #include "lum.h"
@@ -41,5 +43,20 @@ char *rig_lum_format(const struct lum_cal *cal);
  * PATH, so a crash leaves either the old or the new profile. Returns 0, or -1 with a sentence in
  * ERR (PATH is then unchanged). */
 int rig_lum_write(const char *path, const struct lum_cal *cal, char *err, size_t errlen);
+
+struct protocol;
+struct rig;
+
+/* Joins a protocol to its rig's calibration: a background asked in cd/m² becomes the code whose
+ * light is nearest (P->background, with the light in P->background_cd_achieved); `linearize` and
+ * `background_cd` without a calibrated grey channel are errors at their protocol lines; a
+ * calibration older than its max_age_days on TODAY (YYYY-MM-DD; NULL = now) is a warning on the
+ * rig. Returns 0, or -1 when an error went to D. */
+int rig_lum_apply(struct protocol *p, const struct rig *r, const char *today,
+		  struct diag_list *d);
+
+/* The linearising table of channel C of the rig (T[256] per channel, grey used for a channel that
+ * was not measured on its own); false when the rig has no calibration of any channel. */
+bool rig_lum_tables(const struct rig *r, uint8_t t[3][256]);
 
 #endif

@@ -16,7 +16,7 @@
 #include <time.h>
 #include <unistd.h>
 
-#include <cjson/cJSON.h>
+#include <cJSON.h>
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 

@@ -15,9 +15,12 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "inifile.h"
+#include "protocol.h"
+#include "rig.h"
 #include "suggest.h"
 
 static const char *const suffix[LUM_NCHANNELS] = {"", "_red", "_green", "_blue"};
@@ -436,4 +439,69 @@ int rig_lum_write(const char *path, const struct lum_cal *cal, char *err, size_t
 	free(section);
 	free(text);
 	return rc;
+}
+
+int rig_lum_apply(struct protocol *p, const struct rig *r, const char *today,
+		  struct diag_list *d)
+{
+	size_t errors0 = diag_count(d, DIAG_ERROR);
+	const struct lum_cal *cal = r->lum;
+	const struct lum_curve *grey = cal && cal->ch[LUM_GREY].present ? &cal->ch[LUM_GREY] : NULL;
+	if (cal && cal->measured[0]) {
+		char now[11];
+		if (!today) {
+			time_t t = time(NULL);
+			struct tm tm;
+			gmtime_r(&t, &tm);
+			strftime(now, sizeof now, "%Y-%m-%d", &tm);
+			today = now;
+		}
+		long age = lum_age_days(cal->measured, today);
+		if (age > cal->max_age_days)
+			diag_add(d, DIAG_WARNING, r->path, 0, "the luminance calibration is %ld days old "
+				 "(measured %s, max_age_days = %d): measure the display again with "
+				 "'tachist calibrate'", age, cal->measured, cal->max_age_days);
+		else if (age < 0 && lum_age_days(cal->measured, "9999-12-31") >= 0)
+			diag_add(d, DIAG_WARNING, r->path, 0, "the luminance calibration is dated %s, "
+				 "after today (%s)", cal->measured, today);
+	}
+	if (p->background_cd >= 0) {
+		if (!grey) {
+			diag_add(d, DIAG_ERROR, p->path, p->background_cd_line, "background_cd needs a "
+				 "rig calibrated in cd/m2 (a [luminance] section with the grey channel; "
+				 "run 'tachist calibrate --rig %s')", r->path ? r->path : "FILE");
+		} else {
+			double lo = lum_curve_eval(grey, cal->model, 0);
+			double hi = lum_curve_eval(grey, cal->model, 255);
+			p->background = lum_code_for(grey, cal->model, p->background_cd,
+						     &p->background_cd_achieved);
+			if (p->background_cd < lo - 1e-9 || p->background_cd > hi + 1e-9)
+				diag_add(d, DIAG_WARNING, p->path, p->background_cd_line,
+					 "background_cd = %g is outside the display's range (%.4g to "
+					 "%.4g cd/m2); the nearest is code %d, %.4g cd/m2",
+					 p->background_cd, lo, hi, p->background,
+					 p->background_cd_achieved);
+		}
+	}
+	if (p->linearize && !(cal && (grey || (cal->ch[LUM_RED].present && cal->ch[LUM_GREEN].present &&
+					       cal->ch[LUM_BLUE].present))))
+		diag_add(d, DIAG_ERROR, p->path, p->linearize_line, "linearize = yes needs a rig "
+			 "calibrated in cd/m2 (run 'tachist calibrate --rig %s')",
+			 r->path ? r->path : "FILE");
+	return diag_count(d, DIAG_ERROR) > errors0 ? -1 : 0;
+}
+
+bool rig_lum_tables(const struct rig *r, uint8_t t[3][256])
+{
+	const struct lum_cal *cal = r ? r->lum : NULL;
+	if (!cal)
+		return false;
+	const struct lum_curve *grey = cal->ch[LUM_GREY].present ? &cal->ch[LUM_GREY] : NULL;
+	for (int c = 0; c < 3; c++) {
+		const struct lum_curve *cv = cal->ch[LUM_RED + c].present ? &cal->ch[LUM_RED + c] : grey;
+		if (!cv)
+			return false;
+		lum_linear_table(cv, cal->model, t[c]);
+	}
+	return true;
 }
