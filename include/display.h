@@ -57,6 +57,8 @@ void display_texture_size(struct SDL_Texture *t, int *w, int *h);
 void display_stim_rect(const struct display *d, int tw, int th, int long_px, int rect[4]);
 
 void display_clear(struct display *d);
+/* Fills RECT (x, y, w, h in output pixels; NULL = the whole output) with the colour R, G, B. */
+void display_fill_rect(struct display *d, const int rect[4], uint8_t r, uint8_t g, uint8_t b);
 void display_draw_texture(struct display *d, struct SDL_Texture *t, int long_px);
 void display_draw_fixation(struct display *d, int size_px);
 /* Feedback at fixation: a tick when CORRECT, else a cross; SIZE_PX across. */

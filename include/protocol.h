@@ -63,6 +63,9 @@ struct protocol {
 	double epoch_ms[EPOCH_COUNT];
 	double size_deg;               /* stimulus width (longer side) in degrees */
 	int background;                /* grey level 0..255 */
+	double background_cd;          /* background asked in cd/m² (rig calibration), < 0 = unset */
+	double background_cd_achieved; /* light of the code chosen for background_cd, cd/m² */
+	bool linearize;                /* images through the inverse of the display's curve */
 	double fixation_deg;           /* fixation mark size; 0 = none */
 	enum protocol_mask mask;
 	char *mask_image;              /* resolved path when mask = image */
@@ -75,6 +78,7 @@ struct protocol {
 	size_t nadaptive;
 	int epoch_line[EPOCH_COUNT];   /* line of each [timing] key, 0 when defaulted */
 	int size_line;                 /* line of size_deg */
+	int background_line, background_cd_line, linearize_line;
 	int name_line, mask_image_line, break_line;
 };
 

@@ -8,6 +8,8 @@
 
 #include "diag.h"
 
+struct lum_cal;
+
 enum rig_corner { RIG_MARKER_NONE, RIG_MARKER_TOP_LEFT, RIG_MARKER_TOP_RIGHT,
 		  RIG_MARKER_BOTTOM_LEFT, RIG_MARKER_BOTTOM_RIGHT };
 
@@ -22,6 +24,7 @@ struct rig {
 	int display;       /* display index for the observer's window */
 	enum rig_corner marker_corner;
 	int marker_px;     /* side of the square marker patch */
+	struct lum_cal *lum; /* the [luminance] calibration (owned), NULL when the rig has none */
 	int max_image_side; /* widest or tallest image file accepted, px (default: image.h's) */
 };
 

@@ -17,6 +17,7 @@
 #include "estimate.h"
 #include "geom.h"
 #include "inputs.h"
+#include "lum.h"
 
 /* The seed the printed plan is built with; `run` draws its own. */
 #define CHECK_SEED 1
@@ -46,6 +47,49 @@ static void block_conditions(const struct plan *pl, size_t b, const struct stiml
 	*ncats = nc;
 }
 
+/* The display's calibration and the background's light, when the rig has a calibration. */
+static void print_luminance(const struct protocol *p, const struct rig *r)
+{
+	const struct lum_curve *g = r->lum && r->lum->ch[LUM_GREY].present ? &r->lum->ch[LUM_GREY]
+									     : NULL;
+	if (!g) {
+		printf("luminance not calibrated; background code %d%s\n", p->background,
+		       r->lum ? " (only single channels measured)" : "");
+		return;
+	}
+	printf("luminance gamma %.3f, %.4g to %.4g cd/m2, measured %s (%s); background code %d = "
+	       "%.4g cd/m2", g->gamma, g->l_min, g->l_max, r->lum->measured,
+	       lum_uses_table(g, r->lum->model) ? "measured table" : "fit", p->background,
+	       lum_curve_eval(g, r->lum->model, p->background));
+	if (p->background_cd >= 0)
+		printf(" (asked %g)", p->background_cd);
+	printf("%s\n", p->linearize ? "; images linearised" : "");
+}
+
+/* The same for --json: an object, or null without a calibration. */
+static void json_luminance(cJSON *j, const struct protocol *p, const struct rig *r)
+{
+	const struct lum_curve *g = r->lum && r->lum->ch[LUM_GREY].present ? &r->lum->ch[LUM_GREY]
+									     : NULL;
+	if (!g) {
+		cJSON_AddNullToObject(j, "luminance");
+		return;
+	}
+	cJSON *o = cJSON_AddObjectToObject(j, "luminance");
+	cJSON_AddStringToObject(o, "measured", r->lum->measured);
+	cJSON_AddNumberToObject(o, "gamma", g->gamma);
+	cJSON_AddNumberToObject(o, "l_min", g->l_min);
+	cJSON_AddNumberToObject(o, "l_max", g->l_max);
+	cJSON_AddBoolToObject(o, "uses_table", lum_uses_table(g, r->lum->model));
+	cJSON_AddNumberToObject(o, "background_code", p->background);
+	cJSON_AddNumberToObject(o, "background_cd", lum_curve_eval(g, r->lum->model, p->background));
+	if (p->background_cd >= 0)
+		cJSON_AddNumberToObject(o, "background_cd_asked", p->background_cd);
+	else
+		cJSON_AddNullToObject(o, "background_cd_asked");
+	cJSON_AddBoolToObject(o, "linearize", p->linearize);
+}
+
 static void print_text(const struct protocol *p, const struct rig *r, const struct stimlist *l,
 		       const struct plan *pl)
 {
@@ -57,6 +101,7 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 	       geom_px_per_deg(r));
 	printf("stimulus  %g deg -> %d px = %.3f deg\n", p->size_deg, pl->stim_px,
 	       pl->stim_deg_actual);
+	print_luminance(p, r);
 	printf("categories");
 	for (size_t i = 0; i < p->nchoices; i++)
 		printf(" %s=%s", p->choices[i].category, p->choices[i].key);
@@ -132,6 +177,7 @@ static cJSON *json_doc(const struct protocol *p, const struct rig *r, const stru
 	cJSON_AddNumberToObject(rj, "distance_cm", r->distance_cm);
 	cJSON_AddNumberToObject(rj, "refresh_hz", r->refresh_hz);
 	cJSON_AddNumberToObject(rj, "px_per_deg", geom_px_per_deg(r));
+	json_luminance(j, p, r);
 	cJSON *sj = cJSON_AddObjectToObject(j, "stimulus");
 	cJSON_AddNumberToObject(sj, "size_deg", p->size_deg);
 	cJSON_AddNumberToObject(sj, "pixels", pl->stim_px);

@@ -96,6 +96,18 @@ static const struct cmd commands[] = {
 	 "Copies every session of each DB into FILE, which is created when missing; a session "
 	 "already there is not copied twice.",
 	 NULL, cmd_pool},
+	{"calibrate", "measure the display's luminance with a photometer into the rig profile",
+	 "tachist calibrate [--rig FILE] [--from CSV] [--steps N] [--channels grey|rgb|all]\n"
+	 "                  [--patch-deg D] [--surround CODE] [--order shuffled|ascending] [--seed N]\n"
+	 "                  [--model auto|fit|table] [--measured DATE] [--max-age-days N]\n"
+	 "                  [--dry-run] [--json] [--headless] [--window] [--screenshots DIR]\n",
+	 "Shows grey codes (or red, green and blue alone) on the observer's display, full screen or as "
+	 "a patch in degrees, in a shuffled order, and takes the photometer reading typed for each; "
+	 "or reads them from a CSV. Fits L = L_min + (L_max - L_min)(code/255)^gamma per channel by "
+	 "least squares, prints the fit and its residuals, and writes both into the rig profile's "
+	 "[luminance] section (atomically, every other line kept) unless --dry-run. Protocols can "
+	 "then give background_cd and linearize = yes.",
+	 cmd_calibrate_opts, cmd_calibrate},
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
 	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n"
 	 "             [--subject ID] [--seed N] [--resume SESSION] [--window] [--inject-drops RATE]\n"

@@ -6,6 +6,7 @@
  * their sizes (per list row, 0 when unreadable) serve the check that the stimulus fits the
  * screen and then are dropped. */
 #include "inputs.h"
+#include "rig_lum.h"
 
 #include <errno.h>
 #include <math.h>
@@ -141,6 +142,9 @@ int inputs_load(const struct inputs_options *o, struct inputs *in, struct diag_l
 		in->have_rig = rig_load(o->rig_path, &in->rig, d) == 0;
 	else if (o->missing_rig)
 		diag_add(d, DIAG_ERROR, NULL, 0, "%s", o->missing_rig);
+	/* The luminance a protocol asks for comes through the rig's calibration. */
+	if (in->have_proto && in->have_rig)
+		rig_lum_apply(&in->proto, &in->rig, NULL, d);
 	int *w = NULL, *h = NULL;
 	load_list(in, &w, &h, d);
 	if (in->have_proto && in->have_rig && in->have_list) {

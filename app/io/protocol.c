@@ -329,7 +329,12 @@ static const char *const scaling_words[] = {"linear", "nearest", NULL};
 static const struct protocol_key display_keys[] = {
 	{"size_deg", PTYPE_NUMBER, offsetof(struct protocol, size_deg), 0, 90, 1, NULL, 1, "deg",
 	 offsetof(struct protocol, size_line)},
-	{"background", PTYPE_INT, offsetof(struct protocol, background), 0, 255, 0, NULL, 0, NULL, 0},
+	{"background", PTYPE_INT, offsetof(struct protocol, background), 0, 255, 0, NULL, 0, NULL,
+	 offsetof(struct protocol, background_line)},
+	{"background_cd", PTYPE_NUMBER, offsetof(struct protocol, background_cd), 0, 10000, 0, NULL,
+	 0, "cd/m2", offsetof(struct protocol, background_cd_line)},
+	{"linearize", PTYPE_BOOL, offsetof(struct protocol, linearize), 0, 0, 0, NULL, 0, NULL,
+	 offsetof(struct protocol, linearize_line)},
 	{"fixation_deg", PTYPE_NUMBER, offsetof(struct protocol, fixation_deg), 0, 10, 0, NULL, 0,
 	 "deg", 0},
 	{"mask", PTYPE_WORD, offsetof(struct protocol, mask), 0, 0, 0, mask_words, 0, NULL, 0},
@@ -348,6 +353,10 @@ static void display_close(struct protocol_ctx *c, int line)
 		protocol_ctx_error(c, line, "mask = image needs mask_image = PATH");
 	if (p->mask != MASK_IMAGE && p->mask_image)
 		protocol_ctx_warning(c, p->mask_image_line, "mask_image is ignored unless mask = image");
+	if (p->background_line && p->background_cd_line)
+		protocol_ctx_error(c, p->background_cd_line, "give the background as a code "
+				   "(background, line %d) or in cd/m2 (background_cd), not both",
+				   p->background_line);
 }
 
 static const struct protocol_section display_section = {
@@ -778,6 +787,7 @@ static void defaults(struct protocol *p)
 	p->epoch_ms[EPOCH_FEEDBACK] = 500;
 	p->epoch_ms[EPOCH_ITI] = 500;
 	p->background = 128;
+	p->background_cd = -1;
 	p->fixation_deg = 0.3;
 	p->mask = MASK_NONE;
 	p->feedback = FEEDBACK_MARK;

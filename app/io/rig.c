@@ -3,6 +3,7 @@
  *   [screen]  name, width_cm, height_cm, width_px, height_px, distance_cm, refresh_hz, display,
  *             max_image_side
  *   [marker]  corner (none|top-left|top-right|bottom-left|bottom-right), size_px
+ *   [luminance] the photometer calibration, read by rig_lum.c
  *
  * A table of keys (type, range, place in struct rig) drives the parse; every problem becomes a
  * FILE:LINE diagnostic and parsing goes on. Documented in README.md ("Rig profile"). */
@@ -18,6 +19,7 @@
 
 #include "image.h"
 #include "inifile.h"
+#include "rig_lum.h"
 #include "suggest.h"
 
 enum rig_type { RT_NUMBER, RT_INT, RT_TEXT, RT_CORNER };
@@ -52,7 +54,8 @@ _Static_assert(NKEYS > K_SIZE_PX, "keys[] rows K_CORNER and K_SIZE_PX");
 
 static const char *const corners[] = {"none", "top-left", "top-right", "bottom-left",
 				      "bottom-right"};
-static const char *const section_names[] = {"screen", "marker"};
+static const char *const section_names[] = {"screen", "marker", "luminance"};
+#define NSECTIONS (sizeof section_names / sizeof section_names[0])
 
 struct rig_ctx {
 	struct rig *r;
@@ -60,7 +63,8 @@ struct rig_ctx {
 	struct diag_list *d;
 	const char *section;       /* "screen", "marker" or NULL (unknown, keys ignored) */
 	int outside;               /* before any header */
-	int section_line[2];
+	int section_line[NSECTIONS];
+	struct rig_lum_parse *lum;   /* the [luminance] section being read (rig_lum.c) */
 	int seen[NKEYS];
 };
 
@@ -134,7 +138,7 @@ static int on_entry(void *user, const char *section, const char *key, const char
 	if (!key) {
 		c->outside = 0;
 		c->section = NULL;
-		for (int i = 0; i < 2; i++)
+		for (size_t i = 0; i < NSECTIONS; i++)
 			if (!strcmp(section, section_names[i])) {
 				if (c->section_line[i]) {
 					err(c, line, "section [%s] appears twice (first on line %d)", section,
@@ -145,11 +149,11 @@ static int on_entry(void *user, const char *section, const char *key, const char
 				c->section = section_names[i];
 				return 0;
 			}
-		const char *near = suggest_nearest(section, section_names, 2);
+		const char *near = suggest_nearest(section, section_names, NSECTIONS);
 		if (near)
 			err(c, line, "unknown section [%s]; did you mean [%s]?", section, near);
 		else
-			err(c, line, "unknown section [%s] (a rig has [screen] and [marker])", section);
+			err(c, line, "unknown section [%s] (a rig has [screen], [marker] and [luminance])", section);
 		return 0;
 	}
 	if (c->outside) {
@@ -158,6 +162,12 @@ static int on_entry(void *user, const char *section, const char *key, const char
 	}
 	if (!c->section)
 		return 0;
+	if (!strcmp(c->section, "luminance")) {
+		if (!c->lum)
+			c->lum = rig_lum_parse_new();
+		rig_lum_parse_entry(c->lum, c->file, key, value, line, c->d);
+		return 0;
+	}
 	const char *names[NKEYS];
 	size_t n = 0;
 	for (size_t i = 0; i < NKEYS; i++) {
@@ -203,6 +213,10 @@ int rig_parse(const char *path, const char *text, struct rig *r, struct diag_lis
 	}
 	if (c.seen[K_SIZE_PX] && !c.seen[K_CORNER])
 		diag_add(d, DIAG_WARNING, path, c.seen[K_SIZE_PX], "size_px is ignored unless corner is set");
+	if (c.lum) {
+		r->lum = rig_lum_parse_finish(c.lum, path, c.section_line[2], d);
+		c.lum = NULL;
+	}
 	int errors = diag_count(d, DIAG_ERROR) > errors0;
 	if (!errors && r->marker_corner != RIG_MARKER_NONE &&
 	    (r->marker_px * 2 > r->width_px || r->marker_px * 2 > r->height_px))
@@ -241,5 +255,6 @@ void rig_clear(struct rig *r)
 	free(r->path);
 	free(r->text);
 	free(r->name);
+	free(r->lum);
 	memset(r, 0, sizeof *r);
 }

@@ -200,6 +200,17 @@ void display_clear(struct display *d)
 	SDL_RenderClear(d->r);
 }
 
+void display_fill_rect(struct display *d, const int rect[4], uint8_t r, uint8_t g, uint8_t b)
+{
+	SDL_SetRenderDrawColor(d->r, r, g, b, 255);
+	if (!rect) {
+		SDL_RenderFillRect(d->r, NULL);
+		return;
+	}
+	SDL_Rect box = {rect[0], rect[1], rect[2], rect[3]};
+	SDL_RenderFillRect(d->r, &box);
+}
+
 void display_draw_texture(struct display *d, struct SDL_Texture *t, int long_px)
 {
 	int tw, th, rc[4];

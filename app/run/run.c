@@ -29,6 +29,7 @@
 #include "protocol_file.h"
 #include "responder.h"
 #include "rig_file.h"
+#include "rig_lum.h"
 #include "sha256.h"
 #include "stimlist_file.h"
 #include "store.h"
@@ -66,11 +67,17 @@ static uint64_t fresh_seed(void)
 static int decode_image(const char *path, int *w, int *h, uint8_t **rgba, char *err, size_t errlen,
 			void *ctx)
 {
-	const struct rig *rig = ctx;   /* the session's: its image size limit */
+	const struct run_session *s = ctx;   /* read only while the queue lives */
 	struct image img;
 	struct image_info info;
-	if (image_load_max(path, rig->max_image_side, &img, &info, err, errlen))
+	if (image_load_max(path, s->rig.max_image_side, &img, &info, err, errlen))
 		return -1;
+	if (s->linearize) {   /* here, on the worker, never during a trial */
+		size_t n = (size_t)img.width * (size_t)img.height;
+		for (size_t i = 0; i < n; i++)
+			for (int c = 0; c < 3; c++)
+				img.rgba[4 * i + c] = s->lin[c][img.rgba[4 * i + c]];
+	}
 	*w = img.width;
 	*h = img.height;
 	*rgba = img.rgba;
@@ -125,6 +132,7 @@ static int load_inputs(struct run_session *s, const struct run_options *o, const
 	s->list = in.list;
 	s->plan = in.plan;
 	s->have_proto = s->have_rig = s->have_list = s->have_plan = true;
+	s->linearize = s->proto.linearize && rig_lum_tables(&s->rig, s->lin);
 	return 0;
 }
 
@@ -265,7 +273,7 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		tc.frame_ctx = s;
 	}
 	s->tl = trialloop_new(&tc);
-	s->pre = preload_new(s->disp, RUN_LOOKAHEAD, s->proto.scaling == SCALING_NEAREST, decode_image, &s->rig);
+	s->pre = preload_new(s->disp, RUN_LOOKAHEAD, s->proto.scaling == SCALING_NEAREST, decode_image, s);
 	if (!s->pre) {
 		*err = xasprintf("cannot start the image preloader");
 		return -1;

@@ -50,6 +50,8 @@ struct run_session {
 	struct trialloop *tl;
 	struct preload *pre;
 	struct SDL_Texture *mask;
+	bool linearize;          /* images pass through LIN (the rig's calibration) when decoded */
+	uint8_t lin[3][256];
 
 	bool *stored;            /* per planned trial */
 	/* Resume: timing-fault repeats the interrupted run owed (a stored fault in a block that
