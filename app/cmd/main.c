@@ -18,7 +18,7 @@ static void print_help(FILE *out)
 	size_t n;
 	const struct cmd *commands = cmd_table(&n);
 	for (size_t i = 0; i < n; i++)
-		fprintf(out, "  %-9s %s\n", commands[i].name, commands[i].summary);
+		fprintf(out, "  %-10s %s\n", commands[i].name, commands[i].summary);
 	fprintf(out, "\nWith no command, tachist opens the console when run from a terminal.\n"
 		"tachist --version prints the version; tachist --man prints the manual page "
 		"(tachist --man | man -l -).\n");
