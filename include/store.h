@@ -30,7 +30,7 @@ struct rig;
 
 /* Schema version this build writes (PRAGMA user_version). Older files are migrated on open;
  * newer ones are refused. */
-#define STORE_SCHEMA_VERSION 4
+#define STORE_SCHEMA_VERSION 5
 
 /* Session states (docs/storage-states.md): running while a run owns it; complete once every
  * planned trial is stored; ended-early when the experimenter ended it before that; interrupted

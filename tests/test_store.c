@@ -1148,7 +1148,7 @@ static void store_testMigrateV3(void **state)
 		fprintf(stderr, "# %s\n", err);
 	assert_int_equal(rc, 0);
 	v = sh_line("sqlite3 '%s' 'PRAGMA user_version; PRAGMA application_id' | paste -sd,", db);
-	assert_string_equal(v, "4,1952671859");
+	assert_string_equal(v, "5,1952671859");
 	free(v);
 	v = sh_line("sqlite3 '%s' \"SELECT (SELECT count(*) FROM trials), (SELECT count(*) FROM "
 		    "frames), (SELECT count(*) FROM events), (SELECT group_concat(status) FROM "
@@ -1188,6 +1188,51 @@ static void store_testMigrateV3(void **state)
 		    "events\"", db);
 	assert_string_equal(v, "0");
 	free(v);
+	store_close(s);
+	free(db);
+}
+
+/* Version 4 -> 5 (tests/data/store_v4.sql, a demo session of version 4 cut to three trials):
+ * the columns of version 5 are added to both tables and nothing stored is lost. */
+static void store_testMigrateV4(void **state)
+{
+	(void)state;
+	char *db = path_in("v4.db");
+	char *v = sh_line("sqlite3 '%s' < tests/data/store_v4.sql >/dev/null && sqlite3 '%s' "
+			  "'PRAGMA user_version'", db, db);
+	assert_int_equal(atoi(v), 4);
+	free(v);
+	struct store *s = NULL;
+	char *err = NULL;
+	int rc = store_open(db, &s, &err);
+	if (rc)
+		fprintf(stderr, "# %s\n", err);
+	assert_int_equal(rc, 0);
+	v = sh_line("sqlite3 '%s' 'PRAGMA user_version; PRAGMA application_id' | paste -sd,", db);
+	assert_string_equal(v, "5,1952671859");
+	free(v);
+	v = sh_line("sqlite3 '%s' \"SELECT (SELECT count(*) FROM trials), (SELECT count(*) FROM "
+		    "frames), (SELECT count(*) FROM events), (SELECT status FROM sessions)\"", db);
+	assert_string_equal(v, "3|3|4|complete");
+	free(v);
+	/* Every column of the column tables is in the migrated file. */
+	const struct store_table *tables[] = {&store_sessions_table, &store_trials_table};
+	for (size_t k = 0; k < 2; k++)
+		for (size_t i = 0; i < tables[k]->ncols; i++) {
+			v = sh_line("sqlite3 '%s' \"SELECT count(*) FROM pragma_table_info('%s') "
+				    "WHERE name = '%s'\"", db, tables[k]->name, tables[k]->cols[i].name);
+			if (strcmp(v, "1"))
+				fprintf(stderr, "# missing column %s.%s\n", tables[k]->name,
+					tables[k]->cols[i].name);
+			assert_string_equal(v, "1");
+			free(v);
+		}
+	struct store_trial *t;
+	size_t n;
+	const char *a = "e3ee699f-a2c3-427e-9557-253a4a0cd932";
+	assert_int_equal(store_trials_load(s, a, &t, &n, &err), 0);
+	assert_int_equal(n, 3);
+	store_trials_free(t, n);
 	store_close(s);
 	free(db);
 }
@@ -1380,6 +1425,7 @@ int main(void)
 		cmocka_unit_test(store_testApplicationId),
 		cmocka_unit_test(store_testConcurrentCreate),
 		cmocka_unit_test(store_testMigrateV3),
+		cmocka_unit_test(store_testMigrateV4),
 		cmocka_unit_test(store_testReaderNeverWrites),
 		cmocka_unit_test(store_testCompleteWhenPlanDone),
 		cmocka_unit_test(store_testPoolDamagedSource),

@@ -8,7 +8,7 @@
  *
  * Migrations run in one transaction, each taking the file from version K to K + 1. Version 4
  * rebuilds sessions (its status words changed) and adds the trial columns the table has and the
- * file lacks; a later version that only adds columns can reuse add_missing_columns. Called by
+ * file lacks; version 5 only adds columns (add_missing_columns on both tables). Called by
  * store.c when opening and by store_pool.c for old sources. */
 #include <errno.h>
 #include <stdio.h>
@@ -271,6 +271,16 @@ static int migrate_3_4(struct store *s, char **err)
 			  "migrating the schema");
 }
 
+/* Version 4 lacked the columns added since (the observer's design position and key mapping,
+ * the response device and trigger codes, the display's luminance): every one is a plain added
+ * column, so the step adds what the file lacks to both tables. A column added later in this
+ * wave needs no new version as long as no file of version 5 has been written by a release. */
+static int migrate_4_5(struct store *s, char **err)
+{
+	return add_missing_columns(s, &store_sessions_table, err) ||
+	       add_missing_columns(s, &store_trials_table, err) ? -1 : 0;
+}
+
 static int migrate_step(struct store *s, int from, char **err)
 {
 	switch (from) {
@@ -280,6 +290,8 @@ static int migrate_step(struct store *s, int from, char **err)
 		return store_exec(s, migrate_2_3, err, "migrating the schema");
 	case 3:
 		return migrate_3_4(s, err);
+	case 4:
+		return migrate_4_5(s, err);
 	default:
 		store_set_err(err, "%s: no migration from schema version %d", store_path(s), from);
 		return -1;

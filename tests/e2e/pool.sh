@@ -42,7 +42,7 @@ before=$(sha256sum <"$WORK/v1.db")
 expect_exit "sessions on a version-1 file" 0 "$TACHIST" sessions --db "$WORK/v1.db"
 expect_eq "reading left the file byte for byte as it was" "$before" "$(sha256sum <"$WORK/v1.db")"
 expect_exit "pooling into a version-1 file" 0 "$TACHIST" pool --into "$WORK/v1.db" "$WORK/b.db"
-expect_eq "the file is now version 4" 4 "$(sqlite3 "$WORK/v1.db" 'PRAGMA user_version')"
+expect_eq "the file is now version 5" 5 "$(sqlite3 "$WORK/v1.db" 'PRAGMA user_version')"
 expect_eq "its trials survived the migration" "3 512.5" "$(sqlite3 "$WORK/v1.db" "SELECT count(*) || ' ' || (SELECT rt_ms FROM trials WHERE trial = 0) FROM trials WHERE session_id NOT IN (SELECT id FROM sessions WHERE subject = 'RIGB')")"
 expect_eq "new columns have their defaults" "0||frame" "$(sqlite3 "$WORK/v1.db" 'SELECT anticipation, level_requested, rt_clock FROM trials WHERE trial = 0 AND session_id NOT IN (SELECT id FROM sessions WHERE subject = '"'RIGB'"')')"
 # A damaged source is named as the damaged file, not the target.
