@@ -68,6 +68,13 @@ struct store_session {
 	int planned_trials;        /* trials in the plan; 0 = unknown (sessions before schema 4) */
 	int owner_pid;             /* process running it (store_session_begin and _own fill it) */
 	char *owner_host;
+	/* The rig's luminance calibration, grey channel (has_lum false: the rig had none). */
+	bool has_lum;
+	char *lum_measured;        /* YYYY-MM-DD of the measurement, NULL when unknown */
+	double lum_gamma, lum_min_cd, lum_max_cd;
+	bool has_background_cd;
+	double background_cd;      /* the background's light through the calibration, cd/m² */
+	bool linearized;           /* images went through the inverse of the display's curve */
 };
 
 /* Opens or creates PATH and brings its schema up to date. Returns 0 and *OUT, or -1 and *ERR

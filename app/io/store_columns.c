@@ -79,6 +79,22 @@ static const struct store_column session_cols[] = {
 	 "Host name of the machine that runs the session", NULL},
 	{"planned_trials", "planned_trials", STORE_INT, STORE_IF_ZERO, STORE_COL_META, "",
 	 SS(planned_trials), NONE, "Trials in the session's plan (repeats not counted)", NULL},
+	{"luminance_measured", "luminance_measured", STORE_TEXT, STORE_IF_ZERO, STORE_COL_META, "",
+	 SS(lum_measured), NONE, "Date the rig's display luminance was measured (YYYY-MM-DD)", NULL},
+	{"luminance_gamma", "luminance_gamma", STORE_REAL, STORE_IF_UNFLAGGED, STORE_COL_META, "",
+	 SS(lum_gamma), SS(has_lum), "Exponent of the display's fitted luminance curve "
+	 "L = L_min + (L_max - L_min)(code/255)^gamma, grey channel", NULL},
+	{"luminance_min", "luminance_min", STORE_REAL, STORE_IF_UNFLAGGED, STORE_COL_META, "",
+	 SS(lum_min_cd), SS(has_lum), "Fitted luminance of code 0 (L_min), grey channel", "cd/m^2"},
+	{"luminance_max", "luminance_max", STORE_REAL, STORE_IF_UNFLAGGED, STORE_COL_META, "",
+	 SS(lum_max_cd), SS(has_lum), "Fitted luminance of code 255 (L_max), grey channel",
+	 "cd/m^2"},
+	{"background_luminance", "background_luminance", STORE_REAL, STORE_IF_UNFLAGGED,
+	 STORE_COL_META, "", SS(background_cd), SS(has_background_cd),
+	 "Luminance of the background code through the rig's calibration", "cd/m^2"},
+	{"linearized", "linearized", STORE_BOOL, STORE_ALWAYS, STORE_COL_META, "",
+	 SS(linearized), NONE, "Images were passed through the inverse of the display's curve "
+	 "(1) or shown as stored (0)", NULL},
 };
 
 static const struct store_column trial_cols[] = {

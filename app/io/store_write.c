@@ -19,6 +19,7 @@
 #include <cJSON.h>
 
 #include "diag.h"
+#include "lum.h"
 #include "protocol.h"
 #include "rig.h"
 #include "sha256.h"
@@ -81,6 +82,31 @@ static char *dup_or_null(const char *s)
 	return s ? xstrdup(s) : NULL;
 }
 
+/* The rig's calibration (grey channel) and what it says of the protocol's background. */
+static void describe_luminance(struct store_session *ss, const struct protocol *p,
+			       const struct rig *r)
+{
+	const struct lum_curve *c = r->lum ? &r->lum->ch[LUM_GREY] : NULL;
+	free(ss->lum_measured);
+	ss->lum_measured = NULL;
+	ss->has_lum = c && c->present;
+	ss->has_background_cd = false;
+	ss->linearized = false;
+	if (!ss->has_lum)
+		return;
+	if (r->lum->measured[0])
+		ss->lum_measured = xstrdup(r->lum->measured);
+	ss->lum_gamma = c->gamma;
+	ss->lum_min_cd = c->l_min;
+	ss->lum_max_cd = c->l_max;
+	if (p) {
+		ss->has_background_cd = true;
+		ss->background_cd = p->background_cd >= 0 ? p->background_cd_achieved :
+				    lum_curve_eval(c, r->lum->model, p->background);
+		ss->linearized = p->linearize;
+	}
+}
+
 void store_session_describe(struct store_session *ss, const struct protocol *p,
 			    const struct stimlist *l, const struct rig *r)
 {
@@ -112,6 +138,7 @@ void store_session_describe(struct store_session *ss, const struct protocol *p,
 		ss->screen_height_px = r->height_px;
 		ss->distance_cm = r->distance_cm;
 		ss->nominal_hz = r->refresh_hz;
+		describe_luminance(ss, p, r);
 	}
 }
 

@@ -209,3 +209,34 @@ print(int(a[h // 2, w // 2, 0]), int(a[2, 2, 0]))
 EOF
 )
 expect_eq "image 128 shown as 186, background 121" "186 121" "$shown"
+
+# 8. The session carries the calibration in its metadata (JSON export and the BIDS sidecar). The
+#    background achieved is the light of code 121: 0.5 + 100 (121/255)^2.2 = 19.9 cd/m2
+#    (arithmetic), not the 20 asked for.
+"$TACHIST" export --db "$WORK/t.db" --format json --out "$WORK/t.json" >/dev/null 2>&1
+expect_eq "JSON export: calibration date, gamma 2.2, L_min 0.5, L_max 100.5, background 20, linearized" \
+  "2026-01-05 2.2 0.5 100.5 19.9 1" "$($PY - "$WORK/t.json" <<'PYEOF'
+import json, sys
+d = json.load(open(sys.argv[1]))
+s = d["sessions"][0] if isinstance(d, dict) else d[0]
+print(s["luminance_measured"], round(s["luminance_gamma"], 3), round(s["luminance_min"], 3),
+      round(s["luminance_max"], 3), round(s["background_luminance"], 1), int(s["linearized"]))
+PYEOF
+)"
+"$TACHIST" export --db "$WORK/t.db" --format bids --out "$WORK/bids" >/dev/null 2>&1
+side=$(find "$WORK/bids" -name '*_beh.json' | head -n 1)
+expect_eq "BIDS sidecar: the calibration's gamma and the background light" "2.2 19.9" "$($PY - "$side" <<'PYEOF'
+import json, sys
+d = json.load(open(sys.argv[1]))
+def find(o, k):
+    if isinstance(o, dict):
+        if k in o and not isinstance(o[k], dict):
+            return o[k]
+        for v in o.values():
+            r = find(v, k)
+            if r is not None:
+                return r
+    return None
+print(round(find(d, "luminance_gamma"), 3), round(find(d, "background_luminance"), 1))
+PYEOF
+)"
