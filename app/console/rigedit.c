@@ -2,7 +2,8 @@
  * viewing distance, refresh rate, with pixels per degree and the protocol's stimulus size in
  * pixels (and the degrees those pixels really subtend) worked out as the numbers change. Saving
  * writes a rig INI (the keys of README "Rig profile", validated by rig_parse first, so a saved
- * file always loads) to a path the experimenter types, by default the profile the program looks
+ * file always loads; every section, key and comment the form does not edit is kept, such as
+ * [luminance]) atomically to a path the experimenter types, by default the profile the program looks
  * for first ($XDG_CONFIG_HOME/tachist/rig.ini), and hands the path back to the set-up form. */
 #include "console.h"
 
@@ -15,6 +16,7 @@
 
 #include "diag.h"
 #include "geom.h"
+#include "ini_edit.h"
 #include "rig_file.h"
 
 enum row { ROW_NAME, ROW_WCM, ROW_HCM, ROW_WPX, ROW_HPX, ROW_DIST, ROW_HZ, ROW_DISPLAY,
@@ -26,6 +28,7 @@ struct rigedit {
 	int corner;                 /* enum rig_corner */
 	struct rig base;            /* the profile as loaded */
 	bool have_base;
+	bool from_demo;             /* the base is the demo rig: its other lines are not kept */
 	double size_deg;            /* the protocol's stimulus size, 0 when unknown */
 	void (*saved)(struct console *c, void *ud, const char *path);
 	void *ud;
@@ -49,20 +52,29 @@ static const char *const corners[] = {"none", "top-left", "top-right", "bottom-l
 				      "bottom-right"};
 #define NCORNERS (sizeof corners / sizeof corners[0])
 
-/* The rig INI text the fields describe (malloc'd). Empty optional fields are left out, so the
- * parser's defaults apply. */
+/* The rig INI text the fields describe (malloc'd): the loaded profile's text with the keys of
+ * [screen] and [marker] this form edits set (an empty optional field removes its key, so the
+ * parser's default applies), every other line, section and comment kept as it was. Without a
+ * loaded profile the text starts from a comment line. */
 static char *rig_text(const struct rigedit *e)
 {
 	const char *name = e->f[ROW_NAME].len ? e->f[ROW_NAME].text : "bench";
-	const char *disp = e->f[ROW_DISPLAY].len ? e->f[ROW_DISPLAY].text : "0";
-	const char *mpx = e->f[ROW_MARKER].len ? e->f[ROW_MARKER].text : "40";
-	return xasprintf("; Rig profile written by the tachist console.\n"
-			 "[screen]\nname = %s\nwidth_cm = %s\nheight_cm = %s\nwidth_px = %s\n"
-			 "height_px = %s\ndistance_cm = %s\nrefresh_hz = %s\ndisplay = %s\n\n"
-			 "[marker]\ncorner = %s\nsize_px = %s\n",
-			 name, e->f[ROW_WCM].text, e->f[ROW_HCM].text, e->f[ROW_WPX].text,
-			 e->f[ROW_HPX].text, e->f[ROW_DIST].text, e->f[ROW_HZ].text, disp,
-			 corners[e->corner >= 0 && (size_t)e->corner < NCORNERS ? e->corner : 0], mpx);
+	const char *disp = e->f[ROW_DISPLAY].len ? e->f[ROW_DISPLAY].text : NULL;
+	const char *mpx = e->f[ROW_MARKER].len ? e->f[ROW_MARKER].text : NULL;
+	const char *base = e->have_base && e->base.text && !e->from_demo ? e->base.text :
+			   "; Rig profile written by the tachist console.\n";
+	const char *const skeys[] = {"name", "width_cm", "height_cm", "width_px", "height_px",
+				     "distance_cm", "refresh_hz", "display"};
+	const char *const svals[] = {name, e->f[ROW_WCM].text, e->f[ROW_HCM].text,
+				     e->f[ROW_WPX].text, e->f[ROW_HPX].text, e->f[ROW_DIST].text,
+				     e->f[ROW_HZ].text, disp};
+	const char *const mkeys[] = {"corner", "size_px"};
+	const char *const mvals[] = {
+		corners[e->corner >= 0 && (size_t)e->corner < NCORNERS ? e->corner : 0], mpx};
+	char *screen = ini_edit_set_keys(base, "screen", skeys, svals, 8);
+	char *text = ini_edit_set_keys(screen, "marker", mkeys, mvals, 2);
+	free(screen);
+	return text;
 }
 
 /* Parses the fields as a rig; fills R (cleared by the caller) or PROBLEM. */
@@ -143,32 +155,6 @@ static void rig_draw(struct console *c, void *st)
 	rig_clear(&r);
 }
 
-static int write_file(const char *path, const char *text, char *err, size_t len)
-{
-	char *part = xasprintf("%s.part", path);
-	FILE *f = fopen(part, "w");
-	int rc = -1;
-	if (!f) {
-		snprintf(err, len, "cannot write %s: %s", part, strerror(errno));
-		goto out;
-	}
-	fputs(text, f);
-	if (fclose(f) != 0) {
-		snprintf(err, len, "cannot write %s: %s", part, strerror(errno));
-		remove(part);
-		goto out;
-	}
-	if (rename(part, path) != 0) {
-		snprintf(err, len, "cannot rename %s: %s", part, strerror(errno));
-		remove(part);
-		goto out;
-	}
-	rc = 0;
-out:
-	free(part);
-	return rc;
-}
-
 /* Makes the folders of the default profile path (config folder, then tachist/). */
 static void make_default_folder(const char *path)
 {
@@ -212,7 +198,7 @@ static void save(struct console *c, struct rigedit *e)
 	char *text = rig_text(e);
 	char err[600];
 	const char *path = e->f[ROW_PATH].text;
-	if (write_file(path, text, err, sizeof err) != 0) {
+	if (ini_edit_replace_file(path, text, err, sizeof err) != 0) {
 		console_say(c, CONSOLE_BAD, "%s", err);
 		free(text);
 		return;
@@ -311,6 +297,7 @@ void console_rig_push(struct console *c, const char *path, double size_deg,
 	/* Starting from the demo rig, the new profile gets a name of its own, not the demo's. */
 	const struct console_options *o = console_options(c);
 	bool demo = o->rig_is_fallback && o->rig_path && path && !strcmp(o->rig_path, path);
+	e->from_demo = demo;
 	console_field_init(&e->f[ROW_NAME], "name", CONSOLE_TEXT, 60,
 			   e->have_base && b->name && !demo ? b->name : "");
 	char num[16];
@@ -327,7 +314,10 @@ void console_rig_push(struct console *c, const char *path, double size_deg,
 	char *dflt = xdg && *xdg ? xasprintf("%s/tachist/rig.ini", xdg)
 		   : home && *home ? xasprintf("%s/.config/tachist/rig.ini", home)
 				   : xstrdup("rig.ini");
-	console_field_init(&e->f[ROW_PATH], "path", CONSOLE_OUTPATH, 400, dflt);
+	/* A profile being edited is saved back where it came from; a new one (or the demo's) goes
+	 * where the program looks first. */
+	console_field_init(&e->f[ROW_PATH], "path", CONSOLE_OUTPATH, 400,
+			   e->have_base && !demo ? path : dflt);
 	e->dflt = dflt;
 	struct console_screen s = {
 		.title = "rig",

@@ -4,20 +4,18 @@
  * per channel (fit values, readings with their lines); rig_lum_parse_finish checks that each
  * channel is complete and builds the struct lum_cal. Writing: the profile's text is re-read, the
  * old section's lines are dropped, the new section goes in their place (or at the end) and the
- * whole text replaces the file through a temporary file and rename(2). */
+ * whole text replaces the file through a temporary file and rename(2) (ini_edit.c). */
 #include "rig_lum.h"
 
 #include <errno.h>
-#include <fcntl.h>
 #include <math.h>
 #include <stdbool.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 #include <time.h>
-#include <unistd.h>
 
+#include "ini_edit.h"
 #include "inifile.h"
 #include "protocol.h"
 #include "rig.h"
@@ -305,119 +303,6 @@ char *rig_lum_format(const struct lum_cal *cal)
 	return buf;
 }
 
-/* True when LINE (up to its end) is the header of section NAME. */
-static bool is_header(const char *line, size_t n, const char *name, bool *any_header)
-{
-	while (n && (*line == ' ' || *line == '\t')) {
-		line++;
-		n--;
-	}
-	while (n && (line[n - 1] == ' ' || line[n - 1] == '\t' || line[n - 1] == '\r'))
-		n--;
-	*any_header = n >= 2 && line[0] == '[' && line[n - 1] == ']';
-	if (!*any_header)
-		return false;
-	const char *s = line + 1;
-	size_t k = n - 2;
-	while (k && (*s == ' ' || *s == '\t')) {
-		s++;
-		k--;
-	}
-	while (k && (s[k - 1] == ' ' || s[k - 1] == '\t'))
-		k--;
-	return k == strlen(name) && !memcmp(s, name, k);
-}
-
-/* OLD with every [luminance] section dropped and SECTION put where the first one stood (or at
- * the end). Returns malloc'd text. */
-static char *splice(const char *old, const char *section)
-{
-	char *buf = NULL;
-	size_t len = 0, cap = 0;
-	bool inside = false, placed = false;
-	append(&buf, &len, &cap, "");
-	for (const char *p = old; *p;) {
-		const char *nl = strchr(p, '\n');
-		size_t n = nl ? (size_t)(nl - p) : strlen(p);
-		bool header;
-		bool ours = is_header(p, n, "luminance", &header);
-		if (header)
-			inside = ours;
-		if (ours && !placed) {
-			append(&buf, &len, &cap, section);
-			placed = true;
-		}
-		if (!inside) {
-			char *l = xasprintf("%.*s\n", (int)n, p);
-			append(&buf, &len, &cap, l);
-			free(l);
-		}
-		p += n + (nl ? 1 : 0);
-	}
-	if (!placed) {
-		if (len && buf[len - 1] != '\n')
-			append(&buf, &len, &cap, "\n");
-		if (len >= 2 && !(buf[len - 1] == '\n' && buf[len - 2] == '\n'))
-			append(&buf, &len, &cap, "\n");
-		append(&buf, &len, &cap, section);
-	}
-	return buf;
-}
-
-/* Writes TEXT to a new file beside PATH and renames it over PATH, keeping PATH's mode. */
-static int replace_file(const char *path, const char *text, char *err, size_t errlen)
-{
-	struct stat st;
-	mode_t mode = stat(path, &st) == 0 ? st.st_mode & 07777 : 0644;
-	char *tmp = xasprintf("%s.XXXXXX", path);
-	int fd = mkstemp(tmp), rc = -1;
-	if (fd < 0) {
-		snprintf(err, errlen, "cannot write beside %s: %s", path, strerror(errno));
-		free(tmp);
-		return -1;
-	}
-	size_t left = strlen(text);
-	const char *p = text;
-	while (left) {
-		ssize_t w = write(fd, p, left);
-		if (w < 0 && errno == EINTR)
-			continue;
-		if (w <= 0)
-			break;
-		p += w;
-		left -= (size_t)w;
-	}
-	if (left || fchmod(fd, mode) || fsync(fd)) {
-		snprintf(err, errlen, "cannot write %s: %s", tmp, strerror(errno ? errno : EIO));
-		close(fd);
-		goto out;
-	}
-	if (close(fd)) {
-		snprintf(err, errlen, "cannot write %s: %s", tmp, strerror(errno));
-		goto out;
-	}
-	if (rename(tmp, path)) {
-		snprintf(err, errlen, "cannot replace %s: %s", path, strerror(errno));
-		goto out;
-	}
-	/* Make the rename itself durable. */
-	char *dir = xstrdup(path), *slash = strrchr(dir, '/');
-	if (slash)
-		slash[slash == dir ? 1 : 0] = '\0';
-	int dfd = open(slash ? dir : ".", O_RDONLY | O_DIRECTORY);
-	if (dfd >= 0) {
-		fsync(dfd);
-		close(dfd);
-	}
-	free(dir);
-	rc = 0;
-out:
-	if (rc)
-		unlink(tmp);
-	free(tmp);
-	return rc;
-}
-
 int rig_lum_write(const char *path, const struct lum_cal *cal, char *err, size_t errlen)
 {
 	struct diag_list d;
@@ -433,8 +318,8 @@ int rig_lum_write(const char *path, const struct lum_cal *cal, char *err, size_t
 	}
 	diag_clear(&d);
 	char *section = rig_lum_format(cal);
-	char *text = splice(old, section);
-	int rc = replace_file(path, text, err, errlen);
+	char *text = ini_edit_replace_section(old, "luminance", section);
+	int rc = ini_edit_replace_file(path, text, err, errlen);
 	free(old);
 	free(section);
 	free(text);

@@ -104,6 +104,24 @@ expect_screen "the set-up form uses the saved rig" "Rig           $WORK/myrig.in
 check "the saved rig sets the new distance" grep -q "distance_cm = 114" "$WORK/myrig.ini"
 expect_exit "the saved rig passes tachist check" 0 "$TACHIST" check "$ROOT/protocols/demo.ini" --rig "$WORK/myrig.ini"
 
+# Editing a profile again keeps what the form does not edit: a hand-written comment, a key the
+# form has no row for, and the [luminance] section written by calibrate.
+printf 'code,cd_m2\n0,0.4\n64,5.1\n128,21.5\n192,50.2\n255,92\n' >"$WORK/readings.csv"
+"$TACHIST" calibrate --rig "$WORK/myrig.ini" --from "$WORK/readings.csv" >/dev/null 2>&1
+sed -i 's/^\[screen\]$/[screen]\n; the bench by the window\nmax_image_side = 2048/' "$WORK/myrig.ini"
+tm_keys e
+expect_screen "the editor opens on the saved profile" "Save to         $WORK/myrig.ini"
+tm_keys Down Down Down Down Down Enter C-u
+tm_type "100"
+tm_keys Enter s
+expect_screen "saved back to the same profile" "rig saved to $WORK/myrig.ini"
+check "the new distance is written" grep -q "^distance_cm = 100$" "$WORK/myrig.ini"
+expect_eq "the old distance is gone" 0 "$(grep -c "distance_cm = 114" "$WORK/myrig.ini")"
+check "the hand-written comment is kept" grep -q "^; the bench by the window$" "$WORK/myrig.ini"
+check "a key the form has no row for is kept" grep -q "^max_image_side = 2048$" "$WORK/myrig.ini"
+check "the [luminance] section is kept" grep -q "^gamma = " "$WORK/myrig.ini"
+expect_exit "the profile still passes tachist check" 0 "$TACHIST" check "$ROOT/protocols/demo.ini" --rig "$WORK/myrig.ini"
+
 tm_keys C-c
 expect_screen "Ctrl-C on the set-up form ends the console" "console-exit=1"
 tm_stty_same "terminal modes restored after Ctrl-C on the set-up form"
