@@ -286,6 +286,11 @@ void console_export_push(struct console *c, const char *session_id);
  * stimulus size for the worked-out pixels (0: unknown). SAVED gets the written file's path. */
 void console_rig_push(struct console *c, const char *path, double size_deg,
 		      void (*saved)(struct console *c, void *ud, const char *path), void *ud);
+/* The luminance calibration of the rig profile at RIG_PATH (refused, with a message, for the demo
+ * rig); HEADLESS picks the no-display choice first. SAVED gets the path once the result is
+ * written into the profile. */
+void console_calibrate_push(struct console *c, const char *rig_path, bool headless,
+			    void (*saved)(struct console *c, void *ud, const char *path), void *ud);
 /* A scrollable list of LINES (the screen takes ownership of the array and its strings). */
 void console_text_push(struct console *c, const char *title, char **lines, size_t n);
 

@@ -83,6 +83,21 @@ void lum_linear_table(const struct lum_curve *c, enum lum_model model, uint8_t t
  * the demo as a made-up display. */
 double lum_srgb_decode(int code);
 
+/* The codes to show when measuring: STEPS (2..256) evenly spaced over 0..255 (rounded, repeats
+ * dropped) for each channel CHANNEL[c] asks for, as (channel, code) pairs in PLAN (room for
+ * LUM_NCHANNELS * 256), shuffled with SEED (MT19937 through GSL) unless ASCENDING. Returns how
+ * many. */
+size_t lum_plan(int steps, const bool channel[LUM_NCHANNELS], bool ascending, unsigned long seed,
+		int (*plan)[2]);
+/* A photometer reading as typed: a plain decimal number (spaces around allowed), finite and not
+ * negative. Returns 0 with *CD, or -1 with a sentence in MSG. */
+int lum_reading_parse(const char *s, double *cd, char *msg, size_t len);
+/* True when CD at CODE breaks the rise of the N earlier readings (CODES, CDS) of one channel: an
+ * earlier reading at a lower code is brighter, or one at a higher code is darker. *OTHER_CODE and
+ * *OTHER_CD get the first such reading. */
+bool lum_reading_out_of_order(const int *codes, const double *cds, size_t n, int code, double cd,
+			      int *other_code, double *other_cd);
+
 /* Whole days from MEASURED (YYYY-MM-DD) to TODAY (YYYY-MM-DD); -1 when either cannot be read. */
 long lum_age_days(const char *measured, const char *today);
 /* True when S is a valid calendar date written YYYY-MM-DD. */

@@ -17,8 +17,6 @@
 #include <unistd.h>
 
 #include <cJSON.h>
-#include <gsl/gsl_randist.h>
-#include <gsl/gsl_rng.h>
 
 #include "cmd.h"
 #include "opts.h"
@@ -28,6 +26,7 @@
 #include "image.h"
 #include "lum.h"
 #include "lumcsv.h"
+#include "lumshow.h"
 #include "rig_file.h"
 #include "rig_lum.h"
 
@@ -212,16 +211,12 @@ static int read_line(struct display *disp, char *line, size_t len)
 /* Warns when READING at CODE breaks the rise of the channel's earlier readings. */
 static void warn_order(const struct readings *r, int ch, int code, double cd)
 {
-	for (size_t i = 0; i < r->n[ch]; i++) {
-		int c2 = r->code[ch][i];
-		double l2 = r->cd[ch][i];
-		if ((c2 < code && l2 > cd) || (c2 > code && l2 < cd)) {
-			fprintf(stderr, "  warning: %g cd/m2 at code %d against %g cd/m2 at code %d: the "
-				"light should rise with the code (is the photometer still on the "
-				"patch?)\n", cd, code, l2, c2);
-			return;
-		}
-	}
+	int c2;
+	double l2;
+	if (lum_reading_out_of_order(r->code[ch], r->cd[ch], r->n[ch], code, cd, &c2, &l2))
+		fprintf(stderr, "  warning: %g cd/m2 at code %d against %g cd/m2 at code %d: the "
+			"light should rise with the code (is the photometer still on the "
+			"patch?)\n", cd, code, l2, c2);
 }
 
 /* Asks for the reading of CODE on channel CH until a valid one is typed. Returns 1 with *CD, 0
@@ -239,15 +234,12 @@ static int ask_reading(struct display *disp, int k, int total, int code, int ch,
 		const char *s = line + strspn(line, " \t");
 		if (!strcmp(s, "q") || !strcmp(s, "quit"))
 			return 0;
-		double x;
 		if (!*s)
 			continue;
-		if (cmd_parse_double(s, &x) || strspn(s, "0123456789+-.eE ") != strlen(s)) {
-			fprintf(stderr, "  '%s' is not a number; type the reading in cd/m2\n", s);
-			continue;
-		}
-		if (x < 0) {
-			fprintf(stderr, "  %g is negative: a luminance is 0 cd/m2 or more\n", x);
+		char msg[160];
+		double x;
+		if (lum_reading_parse(s, &x, msg, sizeof msg)) {
+			fprintf(stderr, "  %s\n", msg);
 			continue;
 		}
 		*cd = x;
@@ -259,21 +251,7 @@ static int ask_reading(struct display *disp, int k, int total, int code, int ch,
 static void show_code(struct display *disp, struct dclock *clk, const struct cal_opts *o,
 		      int patch_px, int code, int ch, int k)
 {
-	uint8_t v = (uint8_t)code, rgb[3] = {v, v, v};
-	if (ch != LUM_GREY) {
-		rgb[0] = rgb[1] = rgb[2] = 0;
-		rgb[ch - 1] = v;
-	}
-	int w, h;
-	display_size(disp, &w, &h);
-	if (patch_px > 0) {
-		uint8_t s = (uint8_t)o->surround;
-		display_fill_rect(disp, NULL, s, s, s);
-		int rect[4] = {(w - patch_px) / 2, (h - patch_px) / 2, patch_px, patch_px};
-		display_fill_rect(disp, rect, rgb[0], rgb[1], rgb[2]);
-	} else {
-		display_fill_rect(disp, NULL, rgb[0], rgb[1], rgb[2]);
-	}
+	lumshow_draw(disp, patch_px, o->surround, code, ch);
 	if (o->shots) {
 		struct image img = {0};
 		img.rgba = display_read_pixels(disp, &img.width, &img.height);
@@ -286,33 +264,6 @@ static void show_code(struct display *disp, struct dclock *clk, const struct cal
 		free(img.rgba);
 	}
 	dclock_flip(clk);
-}
-
-/* The codes to show: STEPS evenly spaced over 0..255, per channel, shuffled unless ascending. */
-static size_t plan_codes(const struct cal_opts *o, int (*plan)[2])
-{
-	size_t n = 0;
-	for (int ch = 0; ch < LUM_NCHANNELS; ch++) {
-		if (!o->channel[ch])
-			continue;
-		int last = -1;
-		for (int i = 0; i < o->steps; i++) {
-			int code = (int)lround(i * 255.0 / (o->steps - 1));
-			if (code == last)
-				continue;
-			plan[n][0] = ch;
-			plan[n++][1] = last = code;
-		}
-	}
-	if (!o->ascending) {
-		gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-		if (rng) {
-			gsl_rng_set(rng, (unsigned long)o->seed);
-			gsl_ran_shuffle(rng, plan, n, sizeof plan[0]);
-			gsl_rng_free(rng);
-		}
-	}
-	return n;
 }
 
 /* Shows every code and takes the typed readings. Returns 0, or an exit code. */
@@ -337,7 +288,7 @@ static int measure(const struct cal_opts *o, const struct rig *rig, struct readi
 	}
 	int patch_px = o->patch_deg > 0 ? geom_deg_to_px(rig, o->patch_deg, NULL) : 0;
 	static int plan[LUM_NCHANNELS * 256][2];
-	size_t n = plan_codes(o, plan);
+	size_t n = lum_plan(o->steps, o->channel, o->ascending, (unsigned long)o->seed, plan);
 	fprintf(stderr, "Point the photometer at the %s and type each reading (%zu in all, order "
 		"seed %llu).\n", patch_px ? "centre patch" : "screen", n, o->seed);
 	int rc = 0;

@@ -51,6 +51,7 @@ static const struct console_key setup_keys[] = {
 	{"g", "go"},
 	{"p", "problems"},
 	{"e", "edit rig"},
+	{"l", "luminance"},
 	{"Enter", "edit"},
 	{"Up/Down", "move"},
 	{"Left/Right", "choose"},
@@ -479,6 +480,15 @@ static bool setup_key(struct console *c, void *st, int ch)
 			return true;
 		}
 		console_rig_push(c, s->f[ROW_RIG].text, s->size_deg, rig_saved, s);
+		return true;
+	case 'l':
+	case 'L':
+		if (s->stored_rig) {
+			console_say(c, CONSOLE_WARN, "a resumed session keeps the rig stored with it");
+			return true;
+		}
+		console_calibrate_push(c, s->f[ROW_RIG].text, s->display >= CONSOLE_HEADLESS_PACED,
+				       rig_saved, s);
 		return true;
 	default:
 		return false;

@@ -10,6 +10,7 @@
  * Levenberg–Marquardt search only approaches to its stopping tolerance. */
 #include "lum.h"
 
+#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -17,6 +18,8 @@
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_min.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
 #include <gsl/gsl_roots.h>
 
 #define GAMMA_LO 0.05
@@ -358,4 +361,79 @@ long lum_age_days(const char *measured, const char *today)
 	if (read_date(measured, &a) || read_date(today, &b))
 		return -1;
 	return b - a;
+}
+
+size_t lum_plan(int steps, const bool channel[LUM_NCHANNELS], bool ascending, unsigned long seed,
+		int (*plan)[2])
+{
+	size_t n = 0;
+	if (steps < 2 || steps > 256)
+		return 0;
+	for (int ch = 0; ch < LUM_NCHANNELS; ch++) {
+		if (!channel[ch])
+			continue;
+		int last = -1;
+		for (int i = 0; i < steps; i++) {
+			int code = (int)lround(i * 255.0 / (steps - 1));
+			if (code == last)
+				continue;
+			plan[n][0] = ch;
+			plan[n++][1] = last = code;
+		}
+	}
+	if (!ascending && n > 1) {
+		gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+		if (rng) {
+			gsl_rng_set(rng, seed);
+			gsl_ran_shuffle(rng, plan, n, sizeof plan[0]);
+			gsl_rng_free(rng);
+		}
+	}
+	return n;
+}
+
+int lum_reading_parse(const char *s, double *cd, char *msg, size_t len)
+{
+	while (*s == ' ' || *s == '\t')
+		s++;
+	size_t n = strlen(s);
+	while (n && (s[n - 1] == ' ' || s[n - 1] == '\t'))
+		n--;
+	char buf[64];
+	if (!n) {
+		snprintf(msg, len, "type the reading in cd/m2");
+		return -1;
+	}
+	if (n >= sizeof buf || strspn(s, "0123456789+-.eE") < n) {
+		snprintf(msg, len, "'%.*s' is not a number; type the reading in cd/m2",
+			 (int)(n < 40 ? n : 40), s);
+		return -1;
+	}
+	memcpy(buf, s, n);
+	buf[n] = '\0';
+	char *end;
+	errno = 0;
+	double x = strtod(buf, &end);
+	if (end == buf || *end || errno == ERANGE || !isfinite(x)) {
+		snprintf(msg, len, "'%s' is not a number; type the reading in cd/m2", buf);
+		return -1;
+	}
+	if (x < 0) {
+		snprintf(msg, len, "%g is negative: a luminance is 0 cd/m2 or more", x);
+		return -1;
+	}
+	*cd = x;
+	return 0;
+}
+
+bool lum_reading_out_of_order(const int *codes, const double *cds, size_t n, int code, double cd,
+			      int *other_code, double *other_cd)
+{
+	for (size_t i = 0; i < n; i++)
+		if ((codes[i] < code && cds[i] > cd) || (codes[i] > code && cds[i] < cd)) {
+			*other_code = codes[i];
+			*other_cd = cds[i];
+			return true;
+		}
+	return false;
 }
