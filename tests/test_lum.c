@@ -234,6 +234,72 @@ static void lum_testChannelsAndDates(void **state)
 	assert_false(lum_date_valid("1900-02-29"));
 }
 
+/* The measuring plan: 17 steps are every 16th code less a little, i·255/16 rounded (arithmetic:
+ * 0, 16, 32, 48, 64, 80, 96, 112, 128, 143, 159, 175, 191, 207, 223, 239, 255); a shuffled plan
+ * holds the same pairs, and the same seed gives the same order; four channels give four series. */
+static void lum_testPlan(void **state)
+{
+	(void)state;
+	static int plan[LUM_NCHANNELS * 256][2], again[LUM_NCHANNELS * 256][2];
+	bool grey[LUM_NCHANNELS] = {true, false, false, false};
+	static const int want[17] = {0, 16, 32, 48, 64, 80, 96, 112, 128, 143, 159, 175, 191, 207,
+				     223, 239, 255};
+	assert_int_equal(lum_plan(17, grey, true, 1, plan), 17);
+	for (int i = 0; i < 17; i++) {
+		assert_int_equal(plan[i][0], LUM_GREY);
+		assert_int_equal(plan[i][1], want[i]);
+	}
+	assert_int_equal(lum_plan(17, grey, false, 42, plan), 17);
+	assert_int_equal(lum_plan(17, grey, false, 42, again), 17);
+	assert_memory_equal(plan, again, sizeof plan[0] * 17);
+	int sum = 0, moved = 0;
+	for (int i = 0; i < 17; i++) {
+		sum += plan[i][1];
+		moved += plan[i][1] != want[i];
+	}
+	assert_int_equal(sum, 2168);   /* the same codes: 0 + 16 + ... + 255 = 2168 */
+	assert_true(moved > 0);
+	bool all[LUM_NCHANNELS] = {true, true, true, true};
+	assert_int_equal(lum_plan(5, all, true, 1, plan), 20);
+	assert_int_equal(plan[19][0], LUM_BLUE);
+	assert_int_equal(plan[19][1], 255);
+	assert_int_equal(lum_plan(1, grey, true, 1, plan), 0);
+	assert_int_equal(lum_plan(257, grey, true, 1, plan), 0);
+	/* 256 steps are every code once. */
+	assert_int_equal(lum_plan(256, grey, true, 1, plan), 256);
+	assert_int_equal(plan[200][1], 200);
+}
+
+/* Typed readings: numbers with spaces around are taken; words, negatives, infinities and empty
+ * text are refused with a sentence; a reading below one at a lower code is out of order. */
+static void lum_testReadings(void **state)
+{
+	(void)state;
+	double cd = -1;
+	char msg[160];
+	assert_int_equal(lum_reading_parse(" 12.5 ", &cd, msg, sizeof msg), 0);
+	assert_true(cd == 12.5);
+	assert_int_equal(lum_reading_parse("1e2", &cd, msg, sizeof msg), 0);
+	assert_true(cd == 100);
+	assert_int_equal(lum_reading_parse("0", &cd, msg, sizeof msg), 0);
+	assert_int_equal(lum_reading_parse("12 cd", &cd, msg, sizeof msg), -1);
+	assert_non_null(strstr(msg, "is not a number"));
+	assert_int_equal(lum_reading_parse("-3", &cd, msg, sizeof msg), -1);
+	assert_non_null(strstr(msg, "negative"));
+	assert_int_equal(lum_reading_parse("1e999", &cd, msg, sizeof msg), -1);
+	assert_int_equal(lum_reading_parse("", &cd, msg, sizeof msg), -1);
+	assert_non_null(strstr(msg, "type the reading"));
+	assert_int_equal(lum_reading_parse("1.2.3", &cd, msg, sizeof msg), -1);
+	int codes[3] = {0, 128, 255}, oc = -1;
+	double cds[3] = {0.5, 20, 100}, ol = -1;
+	assert_false(lum_reading_out_of_order(codes, cds, 3, 64, 5, &oc, &ol));
+	assert_true(lum_reading_out_of_order(codes, cds, 3, 64, 30, &oc, &ol));
+	assert_int_equal(oc, 128);
+	assert_true(ol == 20);
+	assert_true(lum_reading_out_of_order(codes, cds, 3, 192, 10, &oc, &ol));
+	assert_int_equal(oc, 128);
+}
+
 int main(void)
 {
 	gsl_set_error_handler_off();
@@ -245,6 +311,8 @@ int main(void)
 		cmocka_unit_test(lum_testOptimum),
 		cmocka_unit_test(lum_testBadReadings),
 		cmocka_unit_test(lum_testChannelsAndDates),
+		cmocka_unit_test(lum_testPlan),
+		cmocka_unit_test(lum_testReadings),
 	};
 	return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -323,7 +323,7 @@ static void fit(struct calib *e)
 	}
 	time_t now = time(NULL);
 	struct tm tm;
-	localtime_r(&now, &tm);
+	gmtime_r(&now, &tm);   /* as `tachist calibrate` dates it: UTC */
 	strftime(e->cal.measured, sizeof e->cal.measured, "%Y-%m-%d", &tm);
 	e->cal.max_age_days = e->rig.lum ? e->rig.lum->max_age_days : 30;
 	e->cal.model = e->rig.lum ? e->rig.lum->model : LUM_MODEL_AUTO;

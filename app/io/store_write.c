@@ -91,7 +91,8 @@ static void describe_luminance(struct store_session *ss, const struct protocol *
 	ss->lum_measured = NULL;
 	ss->has_lum = c && c->present;
 	ss->has_background_cd = false;
-	ss->linearized = false;
+	/* linearize without any calibration never gets this far (the loader refuses it). */
+	ss->linearized = p && p->linearize && r->lum;
 	if (!ss->has_lum)
 		return;
 	if (r->lum->measured[0])
@@ -103,7 +104,6 @@ static void describe_luminance(struct store_session *ss, const struct protocol *
 		ss->has_background_cd = true;
 		ss->background_cd = p->background_cd >= 0 ? p->background_cd_achieved :
 				    lum_curve_eval(c, r->lum->model, p->background);
-		ss->linearized = p->linearize;
 	}
 }
 
