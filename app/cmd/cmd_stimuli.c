@@ -595,7 +595,7 @@ int cmd_stimuli(int argc, char **argv)
 		} else if (!act) {
 			return USAGE("name the action (import, audit or controls) before its options");
 		} else if (!(act->takes & (1u << k))) {
-			return USAGE("stimuli %s takes no --%s", act->name, cmd_stimuli_opts[k].name);
+			return USAGE("%s takes no --%s", act->name, cmd_stimuli_opts[k].name);
 		} else {
 			g.v[k] = v ? v : "";
 		}
