@@ -25,7 +25,7 @@ struct cmd {
 /* The option tables, one per command, each in its app/cmd/cmd_<name>.c. */
 extern const struct opts_row cmd_console_opts[], cmd_check_opts[], cmd_run_opts[],
 	cmd_timing_opts[], cmd_sessions_opts[], cmd_report_opts[], cmd_export_opts[], cmd_fit_opts[],
-	cmd_calc_opts[], cmd_calibrate_opts[];
+	cmd_calc_opts[], cmd_calibrate_opts[], cmd_stimuli_opts[], cmd_pool_opts[];
 
 int cmd_console(int argc, char **argv);
 int cmd_check(int argc, char **argv);

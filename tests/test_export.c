@@ -474,6 +474,20 @@ static void export_testSelect(void **state)
 
 /* JSON: an object with the sessions' metadata and one array of trial objects with the same keys
  * in the table's order; missing values are null (docs/storage.md). */
+/* A JSON value as the table cell compare_row reads: null is empty, a number in 17 significant
+ * digits (reads back as the same double), true and false as 1 and 0. */
+static char *json_cell(const cJSON *f)
+{
+	if (cJSON_IsString(f))
+		return xstrdup(f->valuestring);
+	if (cJSON_IsNumber(f))
+		return xasprintf("%.17g", f->valuedouble);
+	if (cJSON_IsBool(f))
+		return xstrdup(cJSON_IsTrue(f) ? "1" : "0");
+	assert_true(cJSON_IsNull(f));
+	return xstrdup("");
+}
+
 static void export_testJson(void **state)
 {
 	struct store *s = *state;
@@ -506,6 +520,14 @@ static void export_testJson(void **state)
 			assert_string_equal(f->string, want_header[k]);
 		assert_int_equal(k, NCOLS);
 		struct store_trial *r = &tr[i];
+		/* Every column equals the database, read as the cells of a table. */
+		char *cells[NCOLS];
+		k = 0;
+		for (cJSON *f = o->child; f; f = f->next, k++)
+			cells[k] = json_cell(f);
+		compare_row(cells, r, &v[0]);
+		for (size_t j = 0; j < NCOLS; j++)
+			free(cells[j]);
 		assert_string_equal(cJSON_GetObjectItem(o, "category")->valuestring, r->category);
 		assert_string_equal(cJSON_GetObjectItem(o, "note")->valuestring, r->label_values[1]);
 		assert_string_equal(cJSON_GetObjectItem(o, "image")->valuestring, r->image);

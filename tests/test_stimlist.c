@@ -125,12 +125,40 @@ static void stimlist_testHeaderProblems(void **state)
 	diag_clear(&d);
 }
 
+/* RFC 4180 section 2, rule 4: "Spaces are considered part of a field and should not be
+ * ignored" -- unquoted cells keep theirs. A NUL byte would end a cell in C: it is refused at its
+ * line (the C string model; no outside source). */
+static void stimlist_testCells(void **state)
+{
+	(void)state;
+	struct stimlist l;
+	struct diag_list d;
+	diag_init(&d);
+	const char *csv = "image,category,note\n a b.png,ring,  two leading\nc.png,bar,trailing \t\n";
+	assert_int_equal(stimlist_parse("s.csv", csv, strlen(csv), NULL, &l, &d), 0);
+	assert_int_equal(l.n, 2);
+	assert_string_equal(l.items[0].image, " a b.png");
+	assert_string_equal(l.items[0].labels[0], "  two leading");
+	assert_string_equal(l.items[1].labels[0], "trailing \t");
+	stimlist_clear(&l);
+	diag_clear(&d);
+	diag_init(&d);
+	const char nul[] = "image,category\na.png,ring\nb.png,b\0ar\nc.png,ring\n";
+	assert_int_equal(stimlist_parse("n.csv", nul, sizeof nul - 1, NULL, &l, &d), -1);
+	assert_int_equal(d.n, 1);
+	assert_string_equal(msg(&d, 0), "n.csv:3: error: a NUL byte (character 8 of the line); a cell "
+			    "cannot hold one");
+	stimlist_clear(&l);
+	diag_clear(&d);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(stimlist_testGood),
 		cmocka_unit_test(stimlist_testProblems),
 		cmocka_unit_test(stimlist_testHeaderProblems),
+		cmocka_unit_test(stimlist_testCells),
 	};
 	return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -8,27 +8,29 @@
 #include "cmd.h"
 #include "store.h"
 
+enum { O_INTO };
+const struct opts_row cmd_pool_opts[] = {
+	[O_INTO] = {"into", "FILE", "the database to pool into (created when missing)"},
+	OPTS_END,
+};
+
 int cmd_pool(int argc, char **argv)
 {
-	const char *into = NULL;
+	const char *into = NULL, *v;
 	const char **srcs = xcalloc((size_t)argc, sizeof *srcs);
 	int nsrc = 0;
-	for (int i = 1; i < argc; i++) {
-		if (!strcmp(argv[i], "--into") && i + 1 < argc)
-			into = argv[++i];
-		else if (argv[i][0] == '-' && argv[i][1]) {
-			fprintf(stderr, "tachist pool: unexpected option '%s'\n", argv[i]);
-			cmd_print_usage("pool", stderr);
-			free(srcs);
-			return EXIT_USAGE;
-		} else
-			srcs[nsrc++] = argv[i];
+	struct opts p;
+	opts_begin(&p, "pool", cmd_pool_opts, argc, argv);
+	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
+		switch (k) {
+		case O_INTO: into = v; break;
+		case OPTS_ARG: srcs[nsrc++] = v; break;
+		default: free(srcs); return EXIT_USAGE;
+		}
 	}
 	if (!into || nsrc == 0) {
-		fprintf(stderr, "tachist pool: give --into FILE and at least one database\n");
-		cmd_print_usage("pool", stderr);
 		free(srcs);
-		return EXIT_USAGE;
+		return opts_usage("pool", "give --into FILE and at least one database");
 	}
 	struct store *s;
 	char *err = NULL;

@@ -18,14 +18,38 @@
 #include "stimimport.h"
 #include "stimlist_file.h"
 
-static int usage_error(const char *fmt, const char *arg)
-{
-	fprintf(stderr, "tachist stimuli: ");
-	fprintf(stderr, fmt, arg);
-	fprintf(stderr, "\n");
-	cmd_print_usage("stimuli", stderr);
-	return EXIT_USAGE;
-}
+/* Every option of every action, one table (it drives parsing, --help and the manual page); each
+ * row of actions[] below names the options its action takes. */
+enum { O_OUT, O_LEVEL_FROM, O_LABELS, O_PROTOCOL, O_KEYS, O_RIG, O_JSON, O_VERBOSE, O_SIZE_DEG,
+       O_UNITS, O_NORM, O_TOLERANCE, O_NEAR_BITS, O_SEED, O_BUDGET, O_MAX_SIDE, O_N };
+const struct opts_row cmd_stimuli_opts[] = {
+	[O_OUT] = {"out", "PATH", "import: the list to write; controls: the folder for the controls"},
+	[O_LEVEL_FROM] = {"level-from", "PATTERN", "import: read level and source from file names"},
+	[O_LABELS] = {"labels", "FILE", "import: label columns from FILE (default DIR/labels.csv)"},
+	[O_PROTOCOL] = {"protocol", "FILE", "import: write a starting protocol; audit: take the size from it"},
+	[O_KEYS] = {"keys", "KEYS", "import: the protocol's response keys, K,K,... (with --protocol)"},
+	[O_RIG] = {"rig", "FILE", "audit: the rig profile (default $XDG_CONFIG_HOME/tachist/rig.ini)"},
+	[O_JSON] = {"json", NULL, "audit: one JSON document on standard output"},
+	[O_VERBOSE] = {"verbose", NULL, "audit: list every flagged image, not one line per group"},
+	[O_SIZE_DEG] = {"size-deg", "D", "audit: the stimulus size in degrees (or --protocol)"},
+	[O_UNITS] = {"units", "UNITS", "audit, controls: levels and distances in unit (0-1) or 255"},
+	[O_NORM] = {"norm", "NORM", "audit: compare levels with the l2 or linf distance"},
+	[O_TOLERANCE] = {"tolerance", "FRAC", "audit: of a level (default 0.02); controls: of the L2 (0.01)"},
+	[O_NEAR_BITS] = {"near-bits", "N", "audit: near duplicates differ in at most N hash bits"},
+	[O_SEED] = {"seed", "N", "controls: the seed of the random directions"},
+	[O_BUDGET] = {"budget", "WHICH", "controls: the L2 to match, measured or the row's level"},
+	[O_MAX_SIDE] = {"max-image-side", "PX", "refuse images wider or taller than PX (16-65535)"},
+	OPTS_END,
+};
+
+/* What the command line said: the action, its one path (DIR or LIST.csv) and the value of each
+ * option given (a flag's value is ""; NULL: not given). */
+struct stimuli_args {
+	const char *path;
+	const char *v[O_N];
+};
+
+#define USAGE(...) opts_usage("stimuli", __VA_ARGS__)
 
 static int parse_units(const char *s, double *scale)
 {
@@ -67,35 +91,21 @@ struct import_args {
 	long max_side;
 };
 
-static int import_args(int argc, char **argv, struct import_args *a)
+static int import_args(const struct stimuli_args *g, struct import_args *a)
 {
 	memset(a, 0, sizeof *a);
-	for (int i = 1; i < argc; i++) {
-		const char *o = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
-		const char **slot = !strcmp(o, "--out") ? &a->out
-				  : !strcmp(o, "--level-from") ? &a->pattern
-				  : !strcmp(o, "--protocol") ? &a->protocol
-				  : !strcmp(o, "--keys") ? &a->keys
-				  : !strcmp(o, "--labels") ? &a->labels : NULL;
-		if (slot && v) {
-			*slot = v;
-			i++;
-		} else if (!strcmp(o, "--max-image-side") && v) {
-			if (parse_side(v, &a->max_side))
-				return usage_error("--max-image-side wants 16 to 65535 px, not '%s'", v);
-			i++;
-		} else if (o[0] == '-') {
-			return usage_error("import: unknown or incomplete option '%s'", o);
-		} else if (!a->dir) {
-			a->dir = o;
-		} else {
-			return usage_error("import: more than one folder ('%s')", o);
-		}
-	}
+	a->dir = g->path;
+	a->out = g->v[O_OUT];
+	a->pattern = g->v[O_LEVEL_FROM];
+	a->protocol = g->v[O_PROTOCOL];
+	a->keys = g->v[O_KEYS];
+	a->labels = g->v[O_LABELS];
+	if (g->v[O_MAX_SIDE] && parse_side(g->v[O_MAX_SIDE], &a->max_side))
+		return USAGE("--max-image-side wants 16 to 65535 px, not '%s'", g->v[O_MAX_SIDE]);
 	if (!a->dir || !a->out)
-		return usage_error("import needs a folder and --out LIST.csv%s", "");
+		return USAGE("import needs a folder and --out LIST.csv");
 	if (a->keys && !a->protocol)
-		return usage_error("--keys goes with --protocol%s", "");
+		return USAGE("--keys goes with --protocol");
 	return 0;
 }
 
@@ -118,10 +128,10 @@ static void import_report(const struct stimimport *s, const struct import_args *
 	}
 }
 
-static int stimuli_import(int argc, char **argv)
+static int stimuli_import(const struct stimuli_args *g)
 {
 	struct import_args a;
-	int urc = import_args(argc, argv, &a);
+	int urc = import_args(g, &a);
 	if (urc)
 		return urc;
 	struct namepat pt = {0};
@@ -172,68 +182,52 @@ struct audit_args {
 	struct stimaudit_opts o;
 };
 
-/* One option with a value; returns 0, a usage exit code, or -1 when O is not one of these. */
-static int audit_value(struct audit_args *a, const char *o, const char *v)
+/* The options with a value, checked; returns 0 or the usage exit code. */
+static int audit_values(struct audit_args *a, const char *const *v)
 {
 	unsigned long long u;
-	if (!strcmp(o, "--rig")) {
-		a->rig = v;
-	} else if (!strcmp(o, "--protocol")) {
-		a->protocol = v;
-	} else if (!strcmp(o, "--size-deg")) {
-		if (cmd_parse_double(v, &a->o.size_deg) || a->o.size_deg <= 0 || a->o.size_deg >= 180)
-			return usage_error("--size-deg wants degrees in (0, 180), not '%s'", v);
+	a->rig = v[O_RIG];
+	a->protocol = v[O_PROTOCOL];
+	if (v[O_SIZE_DEG]) {
+		if (cmd_parse_double(v[O_SIZE_DEG], &a->o.size_deg) || a->o.size_deg <= 0 ||
+		    a->o.size_deg >= 180)
+			return USAGE("--size-deg wants degrees in (0, 180), not '%s'", v[O_SIZE_DEG]);
 		a->have_size = 1;
-	} else if (!strcmp(o, "--units")) {
-		if (parse_units(v, &a->o.units))
-			return usage_error("--units is 'unit' or '255', not '%s'", v);
-	} else if (!strcmp(o, "--norm")) {
-		if (strcmp(v, "l2") && strcmp(v, "linf"))
-			return usage_error("--norm is 'l2' or 'linf', not '%s'", v);
-		a->o.norm_linf = !strcmp(v, "linf");
-	} else if (!strcmp(o, "--tolerance")) {
-		if (cmd_parse_double(v, &a->o.tolerance) || a->o.tolerance < 0 || a->o.tolerance >= 1)
-			return usage_error("--tolerance wants a fraction in [0, 1), not '%s'", v);
-	} else if (!strcmp(o, "--near-bits")) {
-		if (cmd_parse_u64(v, &u) || u > 64)
-			return usage_error("--near-bits wants 0 to 64, not '%s'", v);
-		a->o.near_bits = (int)u;
-	} else if (!strcmp(o, "--max-image-side")) {
-		if (parse_side(v, &a->o.max_side))
-			return usage_error("--max-image-side wants 16 to 65535 px, not '%s'", v);
-	} else {
-		return -1;
 	}
+	if (v[O_UNITS] && parse_units(v[O_UNITS], &a->o.units))
+		return USAGE("--units is 'unit' or '255', not '%s'", v[O_UNITS]);
+	if (v[O_NORM]) {
+		if (strcmp(v[O_NORM], "l2") && strcmp(v[O_NORM], "linf"))
+			return USAGE("--norm is 'l2' or 'linf', not '%s'", v[O_NORM]);
+		a->o.norm_linf = !strcmp(v[O_NORM], "linf");
+	}
+	if (v[O_TOLERANCE] && (cmd_parse_double(v[O_TOLERANCE], &a->o.tolerance) ||
+			       a->o.tolerance < 0 || a->o.tolerance >= 1))
+		return USAGE("--tolerance wants a fraction in [0, 1), not '%s'", v[O_TOLERANCE]);
+	if (v[O_NEAR_BITS]) {
+		if (cmd_parse_u64(v[O_NEAR_BITS], &u) || u > 64)
+			return USAGE("--near-bits wants 0 to 64, not '%s'", v[O_NEAR_BITS]);
+		a->o.near_bits = (int)u;
+	}
+	if (v[O_MAX_SIDE] && parse_side(v[O_MAX_SIDE], &a->o.max_side))
+		return USAGE("--max-image-side wants 16 to 65535 px, not '%s'", v[O_MAX_SIDE]);
 	return 0;
 }
 
-static int audit_args(int argc, char **argv, struct audit_args *a)
+static int audit_args(const struct stimuli_args *g, struct audit_args *a)
 {
 	memset(a, 0, sizeof *a);
 	stimaudit_defaults(&a->o);
-	for (int i = 1; i < argc; i++) {
-		const char *o = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
-		int rc;
-		if (!strcmp(o, "--json")) {
-			a->json = 1;
-		} else if (!strcmp(o, "--verbose")) {
-			a->verbose = 1;
-		} else if (v && (rc = audit_value(a, o, v)) >= 0) {
-			if (rc)
-				return rc;
-			i++;
-		} else if (o[0] == '-') {
-			return usage_error("audit: unknown or incomplete option '%s'", o);
-		} else if (!a->list) {
-			a->list = o;
-		} else {
-			return usage_error("audit: more than one list ('%s')", o);
-		}
-	}
+	a->list = g->path;
+	a->json = g->v[O_JSON] != NULL;
+	a->verbose = g->v[O_VERBOSE] != NULL;
+	int rc = audit_values(a, g->v);
+	if (rc)
+		return rc;
 	if (!a->list)
-		return usage_error("audit needs a stimulus list%s", "");
+		return USAGE("audit needs a stimulus list");
 	if (a->protocol && a->have_size)
-		return usage_error("give --size-deg or --protocol, not both%s", "");
+		return USAGE("give --size-deg or --protocol, not both");
 	return 0;
 }
 
@@ -457,10 +451,10 @@ done:
 	return rc;
 }
 
-static int stimuli_audit(int argc, char **argv)
+static int stimuli_audit(const struct stimuli_args *g)
 {
 	struct audit_args a;
-	int urc = audit_args(argc, argv, &a);
+	int urc = audit_args(g, &a);
 	if (urc)
 		return urc;
 	struct stimlist l = {0};
@@ -485,42 +479,27 @@ static int stimuli_audit(int argc, char **argv)
 
 /* ---- controls ------------------------------------------------------------------------------- */
 
-static int controls_args(int argc, char **argv, const char **list, struct stimcontrols_opts *o)
+static int controls_args(const struct stimuli_args *g, struct stimcontrols_opts *o)
 {
+	const char *const *v = g->v;
 	stimcontrols_defaults(o);
-	*list = NULL;
-	for (int i = 1; i < argc; i++) {
-		const char *a = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
-		if (!strcmp(a, "--out") && v) {
-			o->out_dir = v;
-		} else if (!strcmp(a, "--seed") && v) {
-			if (cmd_parse_u64(v, &o->seed))
-				return usage_error("--seed wants a whole number, not '%s'", v);
-		} else if (!strcmp(a, "--tolerance") && v) {
-			if (cmd_parse_double(v, &o->tolerance) || o->tolerance <= 0 || o->tolerance >= 1)
-				return usage_error("--tolerance wants a fraction in (0, 1), not '%s'", v);
-		} else if (!strcmp(a, "--budget") && v) {
-			if (strcmp(v, "measured") && strcmp(v, "level"))
-				return usage_error("--budget is 'measured' or 'level', not '%s'", v);
-			o->budget_from_level = !strcmp(v, "level");
-		} else if (!strcmp(a, "--units") && v) {
-			if (parse_units(v, &o->units))
-				return usage_error("--units is 'unit' or '255', not '%s'", v);
-		} else if (!strcmp(a, "--max-image-side") && v) {
-			if (parse_side(v, &o->max_side))
-				return usage_error("--max-image-side wants 16 to 65535 px, not '%s'", v);
-		} else if (a[0] == '-') {
-			return usage_error("controls: unknown or incomplete option '%s'", a);
-		} else if (!*list) {
-			*list = a;
-			continue;
-		} else {
-			return usage_error("controls: more than one list ('%s')", a);
-		}
-		i++;
+	o->out_dir = v[O_OUT];
+	if (v[O_SEED] && cmd_parse_u64(v[O_SEED], &o->seed))
+		return USAGE("--seed wants a whole number, not '%s'", v[O_SEED]);
+	if (v[O_TOLERANCE] && (cmd_parse_double(v[O_TOLERANCE], &o->tolerance) ||
+			       o->tolerance <= 0 || o->tolerance >= 1))
+		return USAGE("--tolerance wants a fraction in (0, 1), not '%s'", v[O_TOLERANCE]);
+	if (v[O_BUDGET]) {
+		if (strcmp(v[O_BUDGET], "measured") && strcmp(v[O_BUDGET], "level"))
+			return USAGE("--budget is 'measured' or 'level', not '%s'", v[O_BUDGET]);
+		o->budget_from_level = !strcmp(v[O_BUDGET], "level");
 	}
-	if (!*list || !o->out_dir)
-		return usage_error("controls needs a stimulus list and --out DIR%s", "");
+	if (v[O_UNITS] && parse_units(v[O_UNITS], &o->units))
+		return USAGE("--units is 'unit' or '255', not '%s'", v[O_UNITS]);
+	if (v[O_MAX_SIDE] && parse_side(v[O_MAX_SIDE], &o->max_side))
+		return USAGE("--max-image-side wants 16 to 65535 px, not '%s'", v[O_MAX_SIDE]);
+	if (!g->path || !o->out_dir)
+		return USAGE("controls needs a stimulus list and --out DIR");
 	return 0;
 }
 
@@ -546,11 +525,11 @@ static void controls_report(const struct stimlist *l, const struct stimcontrols 
 		printf("%zu problem%s (above)\n", r->nproblems, r->nproblems == 1 ? "" : "s");
 }
 
-static int stimuli_controls(int argc, char **argv)
+static int stimuli_controls(const struct stimuli_args *g)
 {
-	const char *list;
+	const char *list = g->path;
 	struct stimcontrols_opts o;
-	int urc = controls_args(argc, argv, &list, &o);
+	int urc = controls_args(g, &o);
 	if (urc)
 		return urc;
 	struct stimlist l = {0};
@@ -574,17 +553,54 @@ static int stimuli_controls(int argc, char **argv)
 	return rc;
 }
 
+/* ---- the command ------------------------------------------------------------------------------ */
+
+#define B(o) (1u << (o))
+static const struct stimuli_action {
+	const char *name;
+	unsigned takes;   /* bit O_x: the action takes --x */
+	int (*fn)(const struct stimuli_args *g);
+} actions[] = {
+	{"import", B(O_OUT) | B(O_LEVEL_FROM) | B(O_LABELS) | B(O_PROTOCOL) | B(O_KEYS) |
+		   B(O_MAX_SIDE), stimuli_import},
+	{"audit", B(O_RIG) | B(O_JSON) | B(O_VERBOSE) | B(O_SIZE_DEG) | B(O_PROTOCOL) | B(O_UNITS) |
+		  B(O_NORM) | B(O_TOLERANCE) | B(O_NEAR_BITS) | B(O_MAX_SIDE), stimuli_audit},
+	{"controls", B(O_OUT) | B(O_SEED) | B(O_BUDGET) | B(O_UNITS) | B(O_TOLERANCE) | B(O_MAX_SIDE),
+	 stimuli_controls},
+};
+#undef B
+
 int cmd_stimuli(int argc, char **argv)
 {
-	if (argc < 2) {
-		cmd_print_usage("stimuli", stderr);
-		return EXIT_USAGE;
+	const struct stimuli_action *act = NULL;
+	struct stimuli_args g;
+	memset(&g, 0, sizeof g);
+	struct opts p;
+	opts_begin(&p, "stimuli", cmd_stimuli_opts, argc, argv);
+	const char *v;
+	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
+		if (k == OPTS_USAGE)
+			return EXIT_USAGE;
+		if (k == OPTS_ARG && !act) {
+			for (size_t i = 0; i < sizeof actions / sizeof actions[0]; i++)
+				if (!strcmp(actions[i].name, v))
+					act = &actions[i];
+			if (!act)
+				return USAGE("unknown action '%s' (import, audit or controls)", v);
+		} else if (k == OPTS_ARG) {
+			if (g.path)
+				return USAGE("%s takes one %s, not '%s' as well", act->name,
+					     act == &actions[0] ? "folder" : "list", v);
+			g.path = v;
+		} else if (!act) {
+			return USAGE("name the action (import, audit or controls) before its options");
+		} else if (!(act->takes & (1u << k))) {
+			return USAGE("%s takes no --%s", act->name, cmd_stimuli_opts[k].name);
+		} else {
+			g.v[k] = v ? v : "";
+		}
 	}
-	if (!strcmp(argv[1], "import"))
-		return stimuli_import(argc - 1, argv + 1);
-	if (!strcmp(argv[1], "audit"))
-		return stimuli_audit(argc - 1, argv + 1);
-	if (!strcmp(argv[1], "controls"))
-		return stimuli_controls(argc - 1, argv + 1);
-	return usage_error("unknown action '%s' (import, audit or controls)", argv[1]);
+	if (!act)
+		return USAGE("name the action: import, audit or controls");
+	return act->fn(&g);
 }

@@ -82,20 +82,22 @@ static const struct cmd commands[] = {
 	 "with --json one object whose keys are the words given in the manual.",
 	 cmd_calc_opts, cmd_calc},
 	{"stimuli", "import, audit and make controls for a stimulus set",
-	 "tachist stimuli import DIR --out LIST.csv [--level-from PATTERN]\n"
-	 "tachist stimuli audit LIST.csv [--rig FILE] [--json] [--size-deg D | --protocol FILE]\n"
-	 "                      [--units unit|255] [--norm l2|linf] [--tolerance FRAC] [--near-bits N]\n"
+	 "tachist stimuli import DIR --out LIST.csv [--level-from PATTERN] [--labels FILE]\n"
+	 "                       [--protocol NEW.ini [--keys K,K,...]] [--max-image-side PX]\n"
+	 "tachist stimuli audit LIST.csv [--rig FILE] [--json] [--verbose]\n"
+	 "                      [--size-deg D | --protocol FILE] [--units unit|255] [--norm l2|linf]\n"
+	 "                      [--tolerance FRAC] [--near-bits N] [--max-image-side PX]\n"
 	 "tachist stimuli controls LIST.csv --out DIR [--seed N] [--budget measured|level]\n"
-	 "                         [--units unit|255] [--tolerance FRAC]\n",
+	 "                         [--units unit|255] [--tolerance FRAC] [--max-image-side PX]\n",
 	 "import lists a folder of images as a stimulus list, audit measures every image of a list "
 	 "(size, grey levels, luminance and contrast, near duplicates), controls writes matched "
 	 "control images.",
-	 NULL, cmd_stimuli},
+	 cmd_stimuli_opts, cmd_stimuli},
 	{"pool", "pool databases from several rigs into one",
 	 "tachist pool --into FILE DB...\n",
 	 "Copies every session of each DB into FILE, which is created when missing; a session "
 	 "already there is not copied twice.",
-	 NULL, cmd_pool},
+	 cmd_pool_opts, cmd_pool},
 	{"calibrate", "measure the display's luminance with a photometer into the rig profile",
 	 "tachist calibrate [--rig FILE] [--from CSV] [--steps N] [--channels grey|rgb|all]\n"
 	 "                  [--patch-deg D] [--surround CODE] [--order shuffled|ascending] [--seed N]\n"

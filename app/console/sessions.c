@@ -10,6 +10,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "diag.h"
 #include "store.h"
@@ -162,13 +163,25 @@ static void sessions_draw(struct console *c, void *st)
 		console_put(c, y++, 4, w - 2, CONSOLE_PLAIN, s->notes[i]);
 }
 
+/* Opens the database to write a note or delete a session: as a writer (a reader's connection is
+ * query-only), but only a file that is there already, so a database moved away meanwhile is not
+ * made again, empty. Returns 0, or -1 and *ERR. */
+static int open_writer(struct console *c, struct store **db, char **err)
+{
+	const char *path = console_options(c)->db_path;
+	if (access(path, F_OK) != 0) {
+		*err = xasprintf("no database at %s", path);
+		return -1;
+	}
+	return store_open(path, db, err);
+}
+
 static void add_note(struct console *c, struct sessions *s)
 {
 	struct store *db = NULL;
 	char *err = NULL;
 	const char *id = row(s, s->sel)->id;
-	if (store_open_existing(console_options(c)->db_path, &db, &err) == 0 &&
-	    store_event(db, id, "note", s->note.text, &err) == 0)
+	if (open_writer(c, &db, &err) == 0 && store_event(db, id, "note", s->note.text, &err) == 0)
 		console_say(c, CONSOLE_OK, "note stored with session %.8s", id);
 	else
 		console_say(c, CONSOLE_BAD, "the note was not stored: %s", err ? err : "unknown error");
@@ -186,8 +199,7 @@ static void answer_delete(struct console *c, void *ud, bool yes)
 	snprintf(id, sizeof id, "%s", row(s, s->sel)->id);
 	struct store *db = NULL;
 	char *err = NULL;
-	if (store_open_existing(console_options(c)->db_path, &db, &err) == 0 &&
-	    store_session_delete_empty(db, id, &err) == 0)
+	if (open_writer(c, &db, &err) == 0 && store_session_delete_empty(db, id, &err) == 0)
 		console_say(c, CONSOLE_OK, "session %.8s deleted", id);
 	else
 		console_say(c, CONSOLE_BAD, "not deleted: %s", err ? err : "unknown error");

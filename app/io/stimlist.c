@@ -4,8 +4,10 @@
  * ends while line L is being fed ends on L, and it began on the first non-blank line fed after the
  * previous row ended (a quoted field may span lines). Fields of the current row collect in a
  * growable array; the first row is the header. Every problem is a FILE:LINE diagnostic and
- * parsing goes on (except after broken quoting, which libcsv cannot resume from). Called by
- * `check`, the run layer and the stimulus-set tools. */
+ * parsing goes on (except after broken quoting, which libcsv cannot resume from). Spaces around
+ * an unquoted cell are part of it (RFC 4180 section 2: "Spaces are considered part of a field"),
+ * so libcsv's trimming is off; a NUL byte is refused, since the cell would end there in C. Called
+ * by `check`, the run layer and the stimulus-set tools. */
 #include "stimlist_file.h"
 
 #include <ctype.h>
@@ -63,6 +65,13 @@ static void on_field(void *field, size_t len, void *data)
 		memcpy(s, field, len);
 	s[len] = '\0';
 	c->row.f[c->row.n++] = s;
+}
+
+/* libcsv's space test: nothing is a space, so no cell is trimmed. */
+static int no_space(unsigned char ch)
+{
+	(void)ch;
+	return 0;
 }
 
 static void row_reset(struct lctx *c)
@@ -311,6 +320,7 @@ int stimlist_parse(const char *path, const char *data, size_t len, const struct 
 	struct lctx c = {.file = path, .dir = dir, .p = p, .l = l, .d = d};
 	struct csv_parser parser;
 	csv_init(&parser, CSV_STRICT | CSV_STRICT_FINI);
+	csv_set_space_func(&parser, no_space);
 	size_t pos = 0;
 	int pending = 0, broken = 0;
 	if (len >= 3 && !memcmp(data, "\xef\xbb\xbf", 3))
@@ -320,7 +330,11 @@ int stimlist_parse(const char *path, const char *data, size_t len, const struct 
 		size_t n = nl ? (size_t)(nl - (data + pos)) + 1 : len - pos;
 		const char *s = data + pos;
 		c.line++;
-		if (!inifile_utf8_valid(s, n))
+		const char *nul = memchr(s, '\0', n);
+		if (nul)
+			diag_add(d, DIAG_ERROR, path, c.line, "a NUL byte (character %zu of the line); "
+				 "a cell cannot hold one", (size_t)(nul - s) + 1);
+		else if (!inifile_utf8_valid(s, n))
 			diag_add(d, DIAG_ERROR, path, c.line, "line is not valid UTF-8 text");
 		int blank = 1;
 		for (size_t i = 0; i < n && blank; i++)

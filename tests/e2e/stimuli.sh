@@ -230,6 +230,9 @@ check "a budget of 0 needs no control" grep -q "list.csv:6: rgb.png: note: budge
 expect_exit "controls --budget level with an unreachable level" 1 "$TACHIST" stimuli controls "$C/list.csv" --out "$WORK/cbad-out2" --budget level
 expect_exit "controls without --out is a usage error" 2 "$TACHIST" stimuli controls "$SET/list.csv"
 expect_exit "an unknown action is a usage error" 2 "$TACHIST" stimuli frob
+expect_exit "an option of another action is a usage error" 2 "$TACHIST" stimuli controls "$SET/list.csv" --out "$WORK/x" --json
+expect_eq "naming the action and the option" "tachist stimuli: controls takes no --json" "$(head -n 1 "$WORK/last.err")"
+check "nothing was written" test ! -e "$WORK/x"
 expect_exit "audit of a missing list exits 1" 1 "$TACHIST" stimuli audit "$WORK/none.csv"
 
 # --- controls of grey images stay grey and keep the audit's L2 ------------------------------
