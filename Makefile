@@ -115,6 +115,17 @@ soak: deps
 	$(MAKE) --no-print-directory BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
 	@BUILD=build/san sh tests/soak/run.sh
 
+# The program, its tests and tools build without a warning (-Werror) with gcc and clang at every
+# optimisation level, each in build/cc/COMPILER-LEVEL/. Minutes; not part of `test`.
+COMPILERS ?= gcc clang
+LEVELS    ?= -O0 -O1 -O2 -O3
+CC_TARGET ?= check-build
+compilers: deps
+	@for cc in $(COMPILERS); do for o in $(LEVELS); do echo "compilers: $$cc $$o"; \
+	  $(MAKE) --no-print-directory Q=@ CC=$$cc BUILD=build/cc/$$cc$$o CFLAGS="$$o -g" \
+	    $(CC_TARGET) >build/cc-$$cc$$o.log 2>&1 || { tail -n 30 build/cc-$$cc$$o.log; exit 1; }; \
+	done; done; echo "compilers: $(COMPILERS) at $(LEVELS): no warnings"
+
 # The demo stimulus set is committed; it is drawn again only when its list is missing.
 demo-assets:
 	@[ -f assets-demo/stimuli.csv ] || { $(MAKE) --no-print-directory $(BUILD)/tools/make_demo_assets && \

@@ -259,6 +259,9 @@ int console_pres_skip_block(struct console_pres *p, int block);
 int console_pres_pause(struct console_pres *p, bool pause);
 int console_pres_end(struct console_pres *p);
 int console_pres_close(struct console_pres *p);
+/* Tells the child a signal stopped the console: it ends the trial under way unstored and closes
+ * the session as `interrupted` (not ended early), as a signal to `tachist run` does. */
+int console_pres_interrupt(struct console_pres *p);
 bool console_pres_alive(const struct console_pres *p);
 /* Ends the child cleanly (close; after WAIT_MS a SIGTERM, then a SIGKILL) and frees P. NULL is a
  * no-op. */

@@ -14,6 +14,11 @@
 #include "diag.h"
 #include "epoch.h"
 
+/* The smallest stimulus drawn (its longer side, in pixels): below this a picture is no longer
+ * recognisable, and a size_deg typed wrong (0.01 for 1.0) shows nothing. The issue tracker's
+ * rule; common practice, no source. */
+#define PLAN_MIN_STIM_PX 8
+
 struct protocol;
 struct stimlist;
 struct rig;

@@ -25,9 +25,9 @@
  * observer's own pause menu (paused_by_observer) only RUN_CMD_END has an effect: the observer goes
  * on with Space or the menu.
  *
- * Signals: run_open installs SIGINT/SIGTERM handlers (unless opt.no_signal_handlers) that only set a
- * flag; the current trial is then finished or discarded, the session marked `interrupted` and
- * run_block returns RUN_BLOCK_INTERRUPTED. A caller with its own handlers calls run_request_stop()
+ * Signals: run_open installs SIGINT/SIGTERM/SIGHUP handlers (unless opt.no_signal_handlers) that
+ * only set a flag; the current trial is then finished or discarded, the session marked
+ * `interrupted` and run_block returns RUN_BLOCK_INTERRUPTED. A caller with its own handlers calls run_request_stop()
  * from them (async-signal-safe).
  *
  * Adaptive blocks: trials with plan_trial.staircase >= 0 get their stimulus from the adaptive
@@ -59,7 +59,7 @@ struct run_options {
 	bool has_seed;
 	uint64_t seed;               /* plan seed; a new one from /dev/urandom when !has_seed */
 	const char *resume_id;       /* continue this session (refused when protocol/list changed) */
-	bool no_signal_handlers;     /* the caller owns SIGINT/SIGTERM and calls run_request_stop */
+	bool no_signal_handlers;     /* the caller owns SIGINT/SIGTERM/SIGHUP and calls run_request_stop */
 	bool no_observer_screens;    /* keyboard: leave out the "press space" screens before blocks and
 				      * at rest breaks (the model observer never gets them) */
 	const char *screenshot_dir;  /* debug: save PNGs of the first trial's frames here */
@@ -144,7 +144,7 @@ enum run_block_result {
 	RUN_BLOCK_DONE,           /* every trial shown and stored */
 	RUN_BLOCK_SKIPPED,        /* the observer chose "skip block" in the pause screen */
 	RUN_BLOCK_ENDED,          /* the callback or the observer ended the session (data kept) */
-	RUN_BLOCK_INTERRUPTED,    /* SIGINT/SIGTERM */
+	RUN_BLOCK_INTERRUPTED,    /* SIGINT/SIGTERM/SIGHUP */
 	RUN_BLOCK_FAILED          /* storage or display error: *err says why; session aborted */
 };
 

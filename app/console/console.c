@@ -623,6 +623,8 @@ int console_main(const struct console_options *o)
 				    "Closing the session; every stored trial is kept ...");
 			refresh();
 		}
+		if (stop_signal)
+			console_pres_interrupt(c->pres);
 		console_pres_destroy(c->pres, 5000);
 		c->pres = NULL;
 	}

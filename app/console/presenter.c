@@ -600,6 +600,14 @@ int console_pres_close(struct console_pres *p)
 	return send_cmd(p, CMD_CLOSE, 0);
 }
 
+int console_pres_interrupt(struct console_pres *p)
+{
+	if (!p || p->pid <= 0)
+		return -1;
+	/* The child's run layer turns SIGTERM into its stop flag; the session closes interrupted. */
+	return kill(p->pid, SIGTERM);
+}
+
 bool console_pres_alive(const struct console_pres *p)
 {
 	return p && p->pid > 0;

@@ -323,6 +323,10 @@ int plan_build(const struct protocol *p, const struct stimlist *l, const struct 
 	out->seed = seed;
 	size_t errors0 = diag_count(d, DIAG_ERROR);
 	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	if (!rng) {
+		diag_add(d, DIAG_ERROR, NULL, 0, "out of memory for the trial plan");
+		return -1;
+	}
 	gsl_rng_set(rng, (unsigned long)((seed ^ (seed >> 32)) & 0xffffffffu));
 	for (size_t b = 0; b < p->nblocks; b++)
 		block_trials(p, &p->blocks[b], (int)b, l, rng, out, d);
@@ -332,6 +336,10 @@ int plan_build(const struct protocol *p, const struct stimlist *l, const struct 
 			out->trials[out->blocks[i].first + k].block = (int)i;
 	timing(p, r, out, d);
 	out->stim_px = geom_deg_to_px(r, p->size_deg, &out->stim_deg_actual);
+	if (out->stim_px < PLAN_MIN_STIM_PX)
+		diag_add(d, DIAG_ERROR, p->path, p->size_line, "size_deg = %g is %d px on this rig; "
+			 "a stimulus needs at least %d px a side", p->size_deg, out->stim_px,
+			 PLAN_MIN_STIM_PX);
 	out->est_seconds = estimate_seconds(p, r, out);
 	hash_plan(l, out);
 	if (diag_count(d, DIAG_ERROR) > errors0) {

@@ -4,10 +4,14 @@
  * R, G, B, A in memory). For PNG the stored bit depth and colour type come from the IHDR chunk,
  * since the decoder reduces 16-bit channels to 8 bits. Surfaces never leave this file. Every file's
  * size is read from its header (imagehead.c) before the decoder sees it, and refused over the
- * caller's limit: decoders allocate whatever a header claims. */
+ * caller's limit: decoders allocate whatever a header claims. PNG files are decoded here with
+ * libpng itself (png_decode), with our own error and warning handlers: SDL2_image leaves libpng's
+ * defaults on, which print "libpng error:" lines on the terminal. */
 #include "image.h"
 #include "imagehead.h"
+#include "infile.h"
 
+#include <setjmp.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -66,6 +70,120 @@ static int png_header(FILE *f, struct image_info *info)
 	info->alpha = info->channels == 2 || info->channels == 4;
 	if (!info->alpha && fseek(f, 33, SEEK_SET) == 0)   /* 8 signature + 25 IHDR */
 		info->alpha = png_has_trns(f);
+	return 0;
+}
+
+/* ---- PNG through libpng, so every message is ours ---- */
+
+/* What a PNG decode owns; reached through one pointer that never changes after setjmp. */
+struct png_job {
+	jmp_buf jump;
+	char msg[160];           /* libpng's error text, for our own message */
+	FILE *f;
+	png_structp png;
+	png_infop info;
+	unsigned char *rgba;
+	png_bytep *rows;
+	int width, height;
+};
+
+/* libpng calls this on an error and must not return: back to png_decode's setjmp. */
+static void png_on_error(png_structp png, png_const_charp msg)
+{
+	struct png_job *j = png_get_error_ptr(png);
+	snprintf(j->msg, sizeof j->msg, "%s", msg ? msg : "unknown error");
+	longjmp(j->jump, 1);
+}
+
+/* Warnings (a damaged ancillary chunk, an odd colour profile) do not stop a decode and are not
+ * for the user's terminal. */
+static void png_on_warning(png_structp png, png_const_charp msg)
+{
+	(void)png;
+	(void)msg;
+}
+
+/* The part of the decode that may longjmp back: reads J->f into J->rgba as RGBA8 with the same
+ * conversions SDL2_image makes (16-bit channels stripped to their high byte, palette, grey and
+ * low bit depths expanded, tRNS as alpha, opaque alpha added). Returns 0, or -1 with J->msg. */
+static int png_decode_body(struct png_job *j, long max_side)
+{
+	png_init_io(j->png, j->f);
+	png_set_user_limits(j->png, (png_uint_32)max_side, (png_uint_32)max_side);
+	png_read_info(j->png, j->info);
+	png_uint_32 w = png_get_image_width(j->png, j->info);
+	png_uint_32 h = png_get_image_height(j->png, j->info);
+	int type = png_get_color_type(j->png, j->info);
+	int depth = png_get_bit_depth(j->png, j->info);
+	if (depth == 16)
+		png_set_strip_16(j->png);
+	if (depth < 8)
+		png_set_packing(j->png);
+	if (type == PNG_COLOR_TYPE_PALETTE)
+		png_set_palette_to_rgb(j->png);
+	if (type == PNG_COLOR_TYPE_GRAY && depth < 8)
+		png_set_expand_gray_1_2_4_to_8(j->png);
+	if (png_get_valid(j->png, j->info, PNG_INFO_tRNS))
+		png_set_tRNS_to_alpha(j->png);
+	if (type == PNG_COLOR_TYPE_GRAY || type == PNG_COLOR_TYPE_GRAY_ALPHA)
+		png_set_gray_to_rgb(j->png);
+	if (!(type & PNG_COLOR_MASK_ALPHA) && !png_get_valid(j->png, j->info, PNG_INFO_tRNS))
+		png_set_add_alpha(j->png, 0xff, PNG_FILLER_AFTER);
+	png_set_interlace_handling(j->png);
+	png_read_update_info(j->png, j->info);
+	size_t row = (size_t)w * 4;
+	if (png_get_rowbytes(j->png, j->info) != row) {
+		snprintf(j->msg, sizeof j->msg, "unexpected row layout");
+		return -1;
+	}
+	j->rgba = malloc(row * (size_t)h);
+	j->rows = malloc(sizeof *j->rows * (size_t)h);
+	if (!j->rgba || !j->rows) {
+		snprintf(j->msg, sizeof j->msg, "out of memory");
+		return -1;
+	}
+	for (png_uint_32 y = 0; y < h; y++)
+		j->rows[y] = j->rgba + row * y;
+	png_read_image(j->png, j->rows);
+	png_read_end(j->png, NULL);
+	j->width = (int)w;
+	j->height = (int)h;
+	return 0;
+}
+
+/* Decodes the PNG file PATH into IMG (RGBA8). Returns 0, or -1 with ERR naming PATH and what
+ * libpng found wrong; nothing is printed. */
+static int png_decode(const char *path, long max_side, struct image *img, char *err, size_t errlen)
+{
+	struct png_job job;
+	struct png_job *j = &job;
+	memset(j, 0, sizeof *j);
+	volatile int rc = -1;   /* set after setjmp */
+	j->f = fopen(path, "rb");
+	if (!j->f) {
+		snprintf(err, errlen, "cannot open %s", path);
+		return -1;
+	}
+	j->png = png_create_read_struct(PNG_LIBPNG_VER_STRING, j, png_on_error, png_on_warning);
+	if (j->png)
+		j->info = png_create_info_struct(j->png);
+	if (!j->png || !j->info) {
+		snprintf(j->msg, sizeof j->msg, "out of memory");
+	} else if (setjmp(j->jump) == 0) {
+		rc = png_decode_body(j, max_side);
+	}
+	if (j->png)
+		png_destroy_read_struct(&j->png, j->info ? &j->info : NULL, NULL);
+	fclose(j->f);
+	free(j->rows);
+	if (rc) {
+		free(j->rgba);
+		snprintf(err, errlen, "%s cannot be decoded (%s)", path, j->msg);
+		return -1;
+	}
+	img->rgba = j->rgba;
+	img->width = j->width;
+	img->height = j->height;
 	return 0;
 }
 
@@ -139,15 +257,20 @@ int image_load_max(const char *path, long max_side, struct image *img, struct im
 	image_init();
 	memset(img, 0, sizeof *img);
 	memset(info, 0, sizeof *info);
-	FILE *f = fopen(path, "rb");
+	char why[160];
+	FILE *f = infile_open(path, INFILE_MAX_IMAGE, why, sizeof why);
 	if (!f) {
-		snprintf(err, errlen, "cannot open %s", path);
+		snprintf(err, errlen, "cannot open %s: %s", path, why);
 		return -1;
 	}
 	if (header_check(f, path, max_side, err, errlen)) {
 		fclose(f);
 		return -1;
 	}
+	rewind(f);
+	unsigned char sig[8];
+	static const unsigned char png_sig[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1a, '\n'};
+	int png_file = fread(sig, 1, 8, f) == 8 && !memcmp(sig, png_sig, 8);
 	rewind(f);
 	int is_png = png_header(f, info) == 0;
 	fclose(f);
@@ -158,6 +281,16 @@ int image_load_max(const char *path, long max_side, struct image *img, struct im
 			 "which SDL2_image decodes wrongly; save it without transparency or as grey "
 			 "with an alpha channel", path);
 		return -1;
+	}
+	if (png_file) {   /* every PNG through libpng here, a damaged one too: its messages are ours */
+		if (max_side <= 0)
+			max_side = IMAGE_MAX_SIDE_DEFAULT;
+		snprintf(info->format, sizeof info->format, "png");
+		if (png_decode(path, max_side, img, err, errlen))
+			return -1;
+		info->width = img->width;
+		info->height = img->height;
+		return 0;
 	}
 	SDL_RWops *rw = SDL_RWFromFile(path, "rb");
 	if (!rw) {
@@ -176,12 +309,10 @@ int image_load_max(const char *path, long max_side, struct image *img, struct im
 		snprintf(err, errlen, "%s cannot be decoded (%s)", path, IMG_GetError());
 		return -1;
 	}
-	if (!is_png) {
-		SDL_PixelFormat *pf = s->format;
-		info->bits = 8;
-		info->channels = pf->Amask ? 4 : (pf->BitsPerPixel == 8 && !pf->palette) ? 1 : 3;
-		info->alpha = pf->Amask != 0;
-	}
+	SDL_PixelFormat *pf = s->format;
+	info->bits = 8;
+	info->channels = pf->Amask ? 4 : (pf->BitsPerPixel == 8 && !pf->palette) ? 1 : 3;
+	info->alpha = pf->Amask != 0;
 	SDL_Surface *c = SDL_ConvertSurfaceFormat(s, SDL_PIXELFORMAT_RGBA32, 0);
 	if (c && SDL_HasColorKey(s))
 		key_to_alpha(s, c);

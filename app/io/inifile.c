@@ -6,6 +6,7 @@
  * handler's line. The reader also does the per-line checks (syntax, length, UTF-8) and announces
  * section headers, which inih itself does not report. Used by io/protocol.c and io/rig.c. */
 #include "inifile.h"
+#include "infile.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -159,29 +160,13 @@ int inifile_parse(const char *path, const char *text, inifile_fn fn, void *user,
 
 char *inifile_read(const char *path, size_t *len, struct diag_list *d)
 {
-	FILE *f = fopen(path, "rb");
-	if (!f) {
-		diag_add(d, DIAG_ERROR, path, 0, "cannot read the file: %s", strerror(errno));
+	char why[160];
+	size_t n = 0;
+	char *buf = infile_read(path, INFILE_MAX_INI, &n, why, sizeof why);
+	if (!buf) {
+		diag_add(d, DIAG_ERROR, path, 0, "cannot read the file: %s", why);
 		return NULL;
 	}
-	size_t cap = 4096, n = 0;
-	char *buf = xmalloc(cap);
-	size_t got;
-	while ((got = fread(buf + n, 1, cap - n - 1, f)) > 0) {
-		n += got;
-		if (n + 1 == cap) {
-			cap *= 2;
-			buf = xrealloc(buf, cap);
-		}
-	}
-	int err = ferror(f) ? errno : 0;
-	fclose(f);
-	if (err) {
-		diag_add(d, DIAG_ERROR, path, 0, "cannot read the file: %s", strerror(err));
-		free(buf);
-		return NULL;
-	}
-	buf[n] = '\0';
 	if (memchr(buf, '\0', n)) {
 		diag_add(d, DIAG_ERROR, path, 0, "is not a text file (it contains NUL bytes)");
 		free(buf);

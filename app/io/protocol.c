@@ -20,6 +20,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "decimal.h"
 #include "inifile.h"
 #include "protocol_adaptive.h"
 #include "suggest.h"
@@ -100,7 +101,7 @@ int protocol_value_number(struct protocol_ctx *c, const struct protocol_key *k, 
 	char *end;
 	errno = 0;
 	double v = strtod(value, &end);
-	if (!*value || *end || errno == ERANGE || !isfinite(v)) {
+	if (!decimal_ok(value) || *end || errno == ERANGE || !isfinite(v)) {
 		protocol_ctx_error(c, line, "%s = %s is not a number%s%s", k->name, value,
 				   k->unit ? " of " : "", unit_of(k));
 		return -1;
@@ -457,6 +458,23 @@ static void block_select(struct protocol_ctx *c, const char *value, int line)
 		free(copy);
 		return;
 	}
+	/* strtok_r skips empty clauses: "&&&" would select every row, so look for them first. */
+	for (const char *a = value;; ) {
+		const char *amp = strchr(a, '&');
+		size_t n = amp ? (size_t)(amp - a) : strlen(a);
+		size_t k = 0;
+		while (k < n && isspace((unsigned char)a[k]))
+			k++;
+		if (k == n) {
+			protocol_ctx_error(c, line, "select: an empty clause (around '&'); write "
+					   "COLUMN=VALUE[,VALUE...] on each side of '&'");
+			free(copy);
+			return;
+		}
+		if (!amp)
+			break;
+		a = amp + 1;
+	}
 	for (char *cl = strtok_r(copy, "&", &save); cl; cl = strtok_r(NULL, "&", &save)) {
 		cl = trim(cl);
 		char *eq = strchr(cl, '=');
@@ -485,8 +503,9 @@ static void block_select(struct protocol_ctx *c, const char *value, int line)
 				continue;
 			if (!strcmp(col, "level")) {
 				char *end;
+				errno = 0;
 				double x = strtod(v, &end);
-				if (*end || !isfinite(x)) {
+				if (!decimal_ok(v) || *end || errno == ERANGE || !isfinite(x)) {
 					protocol_ctx_error(c, line, "select: level value '%s' is not a number",
 							   v);
 					bad = 1;

@@ -18,6 +18,7 @@
 #include <string.h>
 
 #include "image.h"
+#include "decimal.h"
 #include "inifile.h"
 #include "rig_lum.h"
 #include "suggest.h"
@@ -107,7 +108,7 @@ static void set_value(struct rig_ctx *c, const struct rig_key *k, const char *v,
 	char *end;
 	errno = 0;
 	double x = k->type == RT_INT ? (double)strtol(v, &end, 10) : strtod(v, &end);
-	if (*end || errno == ERANGE || !isfinite(x)) {
+	if (*end || errno == ERANGE || !isfinite(x) || !decimal_ok(v)) {
 		err(c, line, "%s = %s is not a %s", k->name, v,
 		    k->type == RT_INT ? "whole number" : "number");
 		return;

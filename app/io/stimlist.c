@@ -19,6 +19,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "decimal.h"
+#include "infile.h"
 #include "inifile.h"
 #include "protocol.h"
 #include "sha256.h"
@@ -197,7 +199,7 @@ static void data_row(struct lctx *c)
 			bad = 1;
 		} else {
 			level = strtod(lv, &end);
-			if (*end || errno == ERANGE || !isfinite(level)) {
+			if (!decimal_ok(lv) || *end || errno == ERANGE || !isfinite(level)) {
 				diag_add(c->d, DIAG_ERROR, c->file, line, "level '%s' is not a number", lv);
 				bad = 1;
 			}
@@ -374,27 +376,12 @@ int stimlist_parse(const char *path, const char *data, size_t len, const struct 
 int stimlist_load(const char *path, const struct protocol *p, struct stimlist *l,
 		  struct diag_list *d)
 {
-	FILE *f = fopen(path, "rb");
-	if (!f) {
+	char why[160];
+	size_t n = 0;
+	char *buf = infile_read(path, INFILE_MAX_LIST, &n, why, sizeof why);
+	if (!buf) {
 		memset(l, 0, sizeof *l);
-		diag_add(d, DIAG_ERROR, path, 0, "cannot read the stimulus list: %s", strerror(errno));
-		return -1;
-	}
-	size_t cap = 65536, n = 0, got;
-	char *buf = xmalloc(cap);
-	while ((got = fread(buf + n, 1, cap - n, f)) > 0) {
-		n += got;
-		if (n == cap) {
-			cap *= 2;
-			buf = xrealloc(buf, cap);
-		}
-	}
-	int err = ferror(f) ? errno : 0;
-	fclose(f);
-	if (err) {
-		free(buf);
-		memset(l, 0, sizeof *l);
-		diag_add(d, DIAG_ERROR, path, 0, "cannot read the stimulus list: %s", strerror(err));
+		diag_add(d, DIAG_ERROR, path, 0, "cannot read the stimulus list: %s", why);
 		return -1;
 	}
 	int rc = stimlist_parse(path, buf, n, p, l, d);

@@ -38,7 +38,7 @@
 
 #define MEASURE_FLIPS 120
 
-/* The process-wide stop flag, set by our SIGINT/SIGTERM handlers or run_request_stop. */
+/* The process-wide stop flag, set by our SIGINT/SIGTERM/SIGHUP handlers or run_request_stop. */
 static volatile sig_atomic_t run_stop_flag;
 
 void run_request_stop(void) { run_stop_flag = 1; }
@@ -373,6 +373,14 @@ static int resume_load(struct run_session *s, const struct run_options *o, struc
 		*err = xasprintf("session %s is already complete", s->ss.id);
 		return -1;
 	}
+	if (s->ss.status == STORE_RUNNING && store_session_orphaned(&s->ss)) {
+		/* Its process is gone but recovery could not mark it: the file cannot be written. */
+		*err = xasprintf("session %.8s was left running by a process that has ended, and "
+				 "cannot be taken over: %s; resume it where the database and its "
+				 "folder can be written", s->ss.id,
+				 s->recover_err ? s->recover_err : "the database cannot be written");
+		return -1;
+	}
 	if (s->ss.status == STORE_RUNNING) {
 		/* Recovery left it running: its process is alive here or it runs elsewhere. */
 		*err = xasprintf("session %.8s is still running in another process (here or on "
@@ -438,7 +446,8 @@ static int session_begin(struct run_session *s, const struct run_options *o, con
 	return store_session_begin(s->store, &s->ss, err);
 }
 
-/* SIGINT and SIGTERM only set the stop flag while the session is open. */
+/* SIGINT, SIGTERM and SIGHUP (the terminal closed) only set the stop flag while the session is
+ * open, so the session is closed as interrupted. */
 static void install_handlers(struct run_session *s)
 {
 	struct sigaction sa;
@@ -447,6 +456,7 @@ static void install_handlers(struct run_session *s)
 	sigemptyset(&sa.sa_mask);
 	sigaction(SIGINT, &sa, &s->old_int);
 	sigaction(SIGTERM, &sa, &s->old_term);
+	sigaction(SIGHUP, &sa, &s->old_hup);
 	s->handlers = true;
 }
 
@@ -462,9 +472,10 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 	if (store_open(o->db_path ? o->db_path : "tachist.db", &s->store, err))
 		goto fail;
 	int nrec = 0;
-	char *rerr = NULL;
-	if (store_recover(s->store, &nrec, &rerr))
-		free(rerr);   /* a read-only database fails later, at the session's first write */
+	/* A read-only database fails later, at the session's first write (or a resume says why its
+	 * crashed session could not be taken over). */
+	if (store_recover(s->store, &nrec, &s->recover_err) && !s->recover_err)
+		s->recover_err = xstrdup("the database cannot be written");
 	if (o->resume_id) {
 		if (resume_load(s, o, d, err))
 			goto fail;
@@ -654,6 +665,7 @@ int run_close(struct run_session *s, char **err)
 	if (s->handlers) {
 		sigaction(SIGINT, &s->old_int, NULL);
 		sigaction(SIGTERM, &s->old_term, NULL);
+		sigaction(SIGHUP, &s->old_hup, NULL);
 	}
 	preload_destroy(s->pre);
 	trialloop_destroy(s->tl);
@@ -662,6 +674,7 @@ int run_close(struct run_session *s, char **err)
 	dclock_destroy(s->clock);
 	display_close(s->disp);
 	store_close(s->store);
+	free(s->recover_err);
 	store_session_clear(&s->ss);
 	run_adaptive_free(s);
 	if (s->have_plan)

@@ -70,10 +70,11 @@ struct run_session {
 	struct run_refresh refresh;
 	bool failed, ended, interrupted;
 	bool live;               /* the session row is ours to end (run_open succeeded) */
+	char *recover_err;       /* why store_recover could not mark orphans, or NULL */
 	const char *screenshot_dir;
 	bool shots_done;
 	int shot_epoch_seen[EPOCH_COUNT];
-	struct sigaction old_int, old_term;
+	struct sigaction old_int, old_term, old_hup;
 	bool handlers;
 
 	/* Adaptive blocks: the rule's state per plan block, built on the block's first pick (from

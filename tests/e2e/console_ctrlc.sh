@@ -1,8 +1,9 @@
 # e2e console_ctrlc — Ctrl-C on every screen not covered elsewhere (the first screen and the
 # set-up form are in console_frame and console_input, a running block in console_live): the
 # blocks screen with a session open, the sessions list, results, export with a path half typed,
-# the rig editor, the help overlay and a yes/no question. Each time the terminal modes are as
-# before and the stored data are kept.
+# the rig editor, the help overlay and a yes/no question; then SIGHUP with a session open. Each
+# time the terminal modes are as before, the stored data are kept, and a session left open is
+# marked interrupted.
 . tests/e2e/lib.sh
 . tests/e2e/console.inc
 
@@ -38,5 +39,17 @@ ctrl_c_on "blocks screen with a session open" "not run" Enter Enter K02 Enter g
 n=$(sqlite3 "$DB" "select count(*) from trials")
 expect_eq "every stored trial is still there" "$before" "$n"
 st=$(sqlite3 "$DB" "select status from sessions where subject = 'K02'")
-check "the session left open is closed, not left running ($st)" [ "$st" != running ]
+expect_eq "the session left open by Ctrl-C is marked interrupted" interrupted "$st"
+
+# SIGHUP (the experimenter's terminal closed) with a session open: the same clean way out.
+tm_keys clear Enter
+tm_console
+tm_wait "Before anyone sits down" 20
+for k in Enter Enter K03 Enter g; do tm_keys "$k"; sleep 0.3; done
+expect_screen "SIGHUP: a session open on the blocks screen" "not run"
+kill -HUP "$(tm_console_pid)"
+expect_screen "SIGHUP ends the console" "console-exit=1" 20
+tm_stty_same "SIGHUP: terminal modes restored"
+st=$(sqlite3 "$DB" "select status from sessions where subject = 'K03'")
+expect_eq "SIGHUP: the session left open is marked interrupted" interrupted "$st"
 expect_eq "the database is intact" ok "$(sqlite3 "$DB" "pragma integrity_check")"

@@ -52,4 +52,4 @@ for d in tests/data/bad/*/; do
   fi
   n=$((n + 1))
 done
-expect_eq "the corpus has at least 30 cases" 1 "$([ "$n" -ge 30 ] && echo 1 || echo 0)"
+expect_eq "the corpus has at least 120 cases ($n)" 1 "$([ "$n" -ge 120 ] && echo 1 || echo 0)"
