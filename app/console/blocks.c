@@ -151,8 +151,16 @@ static void blocks_draw(struct console *c, void *sv)
 			     st->session_id, (unsigned long long)st->seed, st->timing_mode);
 	y++;
 	if (st->nblocks) {
-		console_put(c, y++, 2, COLS - 4, CONSOLE_DIM,
-			    "  #  block              trials       about  kind       state");
+		/* Block names get 18 columns at 80; a wider terminal gives a longer name up to half
+		 * of what it adds (the state column takes the rest). */
+		int nw = 18;
+		for (size_t i = 0; i < st->nblocks; i++) {
+			int l = (int)strlen(st->blocks[i].name), room = 18 + (COLS - CONSOLE_MIN_COLS) / 2;
+			if (l > nw)
+				nw = l < room ? l : room;
+		}
+		console_putf(c, y++, 2, COLS - 4, CONSOLE_DIM,
+			     "  #  %-*s trials       about  kind       state", nw, "block");
 		double left = 0, total = 0;
 		for (size_t i = 0; i < st->nblocks; i++) {
 			double e = block_estimate(st, &st->blocks[i]);
@@ -184,8 +192,8 @@ static void blocks_draw(struct console *c, void *sv)
 			}
 			bool sel = (int)i == b->sel && st->phase == CONSOLE_PRES_IDLE;
 			console_putf(c, y, 2, COLS - 4, sel ? CONSOLE_PICK : CONSOLE_PLAIN,
-				     "%s%2zu  %-18.18s %6zu  %10s  %-9s  %s", sel ? ">" : " ", i + 1,
-				     k->name, k->ntrials, dur,
+				     "%s%2zu  %-*.*s %6zu  %10s  %-9s  %s", sel ? ">" : " ", i + 1,
+				     nw, nw, k->name, k->ntrials, dur,
 				     k->practice ? "practice" : k->adaptive ? "adaptive" : "", state);
 		}
 		char t1[32], t2[32];

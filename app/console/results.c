@@ -139,11 +139,19 @@ static void draw_accuracy(struct console *c, struct results *r, int y)
 {
 	const struct analysis *a = r->a;
 	int w = COLS - 4;
-	int barx = 64, barw = COLS - barx - 3;
+	/* Block names get 14 columns at 80; a wider terminal gives a longer name more. */
+	int nw = 14;
+	for (size_t i = 0; i < a->ncells; i++) {
+		int l = a->cells[i].block_name ? (int)strlen(a->cells[i].block_name) : 0;
+		int room = 14 + (COLS - CONSOLE_MIN_COLS);
+		if (l > nw)
+			nw = l < room ? l : room;
+	}
+	int barx = 64 + nw - 14, barw = COLS - barx - 3;
 	if (barw > 30)
 		barw = 30;
-	console_put(c, y, 2, w, CONSOLE_DIM,
-		    "block          level    trials  correct     %     95% Wilson");
+	console_putf(c, y, 2, w, CONSOLE_DIM, "%-*s level    trials  correct     %%     95%% Wilson",
+		     nw, "block");
 	if (barw >= 10) {
 		console_put(c, y, barx, 2, CONSOLE_DIM, "0%");
 		console_put(c, y, barx + (barw - 1) / 2 - 1, 3, CONSOLE_DIM, "50%");
@@ -159,13 +167,13 @@ static void draw_accuracy(struct console *c, struct results *r, int y)
 		if (k->has_level)
 			snprintf(level, sizeof level, "%g", k->level);
 		if (!k->has_pc) {
-			console_putf(c, y, 2, w, CONSOLE_DIM, "%-14.14s %-8s %6lu  no answers",
+			console_putf(c, y, 2, w, CONSOLE_DIM, "%-*.*s %-8s %6lu  no answers", nw, nw,
 				     k->block_name ? k->block_name : "", level, k->trials);
 			continue;
 		}
 		console_putf(c, y, 2, barx - 3, CONSOLE_PLAIN,
-			     "%-14.14s %-8s %6lu  %7lu  %5.1f  %5.1f-%5.1f", k->block_name ? k->block_name : "",
-			     level, k->trials, k->k, 100 * k->pc, 100 * k->lower, 100 * k->upper);
+			     "%-*.*s %-8s %6lu  %7lu  %5.1f  %5.1f-%5.1f", nw, nw,
+			     k->block_name ? k->block_name : "", level, k->trials, k->k, 100 * k->pc, 100 * k->lower, 100 * k->upper);
 		if (barw >= 10)
 			draw_interval(c, y, barx, barw, k->lower, k->pc, k->upper);
 	}
@@ -284,20 +292,35 @@ static void draw_confusion(struct console *c, struct results *r, int y)
 	char lv[40] = "all trials";
 	if (k->has_level)
 		snprintf(lv, sizeof lv, "level %g", k->level);
-	console_putf(c, y++, 2, w, CONSOLE_PLAIN,
-		     "%s (%zu of %zu, Left/Right); rows: true category, columns: answer; shade = share "
-		     "of the row", lv, r->level + 1, a->nconf);
+	char intro[300];
+	snprintf(intro, sizeof intro, "%s (%zu of %zu, Left/Right); rows: true category, columns: "
+		 "answer; shade = share of the row", lv, r->level + 1, a->nconf);
+	y += console_wrap(c, y, 2, w, 2, CONSOLE_PLAIN, intro);
 	size_t n = a->ncat;
-	int lab = 12, cell = n <= 8 ? 7 : 3;
+	/* Row labels and column heads as wide as the longest name allows: a wider terminal shows
+	 * more of each name, never the same cut one. A head wider than its cell alternates over two
+	 * rows, each then twice the cell wide. */
+	int longest = 1;
+	for (size_t j = 0; j < n; j++) {
+		int l = (int)strlen(a->cats[j]);
+		longest = l > longest ? l : longest;
+	}
+	int lab = longest + 2 < 12 ? 12 : longest + 2 > 24 ? 24 : longest + 2;
+	int cell = n <= 8 ? 7 : 3;
+	while (cell < 16 && cell <= longest && 2 + lab + (int)n * (cell + 1) <= COLS - 2)
+		cell++;
 	size_t fit_cols = (size_t)((COLS - 4 - lab) / cell);
 	size_t ncol = n < fit_cols ? n : fit_cols;
+	bool two = longest > cell - 1;
 	y++;
-	for (size_t j = 0; j < ncol; j++)
-		console_putf(c, y, 2 + lab + (int)j * cell, cell, CONSOLE_DIM, "%-*.*s", cell - 1,
-			     cell - 1, a->cats[j]);
-	y++;
+	for (size_t j = 0; j < ncol; j++) {
+		int hw = two ? 2 * cell - 1 : cell - 1;
+		console_putf(c, y + (two && j % 2), 2 + lab + (int)j * cell, hw + 1, CONSOLE_DIM,
+			     "%-*.*s", hw, hw, a->cats[j]);
+	}
+	y += two ? 2 : 1;
 	for (size_t i = 0; i < n && y < LINES - 4; i++, y++) {
-		console_putf(c, y, 2, lab - 1, CONSOLE_PLAIN, "%-*.*s", lab - 1, lab - 1, a->cats[i]);
+		console_putf(c, y, 2, lab - 1, CONSOLE_PLAIN, "%-*.*s", lab - 2, lab - 2, a->cats[i]);
 		unsigned long rn = k->row_n[i];
 		for (size_t j = 0; j < ncol; j++) {
 			unsigned long cnt = k->counts[i * n + j];
@@ -307,7 +330,7 @@ static void draw_confusion(struct console *c, struct results *r, int y)
 			enum console_role role = i == j ? CONSOLE_OK : CONSOLE_WARN;
 			for (int q = 0; q < 2; q++)
 				console_put(c, y, x + q, 1, rn ? role : CONSOLE_DIM, rn ? g : " ");
-			if (cell == 7 && rn)
+			if (cell >= 7 && rn)
 				console_putf(c, y, x + 2, 4, CONSOLE_PLAIN, "%4.0f", 100 * share);
 		}
 	}
