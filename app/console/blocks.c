@@ -191,10 +191,15 @@ static void blocks_draw(struct console *c, void *sv)
 				snprintf(state + n, sizeof state - n, ", run %d times", k->runs);
 			}
 			bool sel = (int)i == b->sel && st->phase == CONSOLE_PRES_IDLE;
-			console_putf(c, y, 2, COLS - 4, sel ? CONSOLE_PICK : CONSOLE_PLAIN,
-				     "%s%2zu  %-*.*s %6zu  %10s  %-9s  %s", sel ? ">" : " ", i + 1,
-				     nw, nw, k->name, k->ntrials, dur,
-				     k->practice ? "practice" : k->adaptive ? "adaptive" : "", state);
+			enum console_role role = sel ? CONSOLE_PICK : CONSOLE_PLAIN;
+			int sx = 2 + console_putf(c, y, 2, COLS - 4, role,
+						  "%s%2zu  %-*.*s %6zu  %10s  %-9s  ", sel ? ">" : " ",
+						  i + 1, nw, nw, k->name, k->ntrials, dur,
+						  k->practice ? "practice"
+							      : k->adaptive ? "adaptive" : "");
+			/* A state wider than its column goes on under itself, not cut. */
+			int used = console_wrap(c, y, sx, COLS - 2 - sx, 2, role, state);
+			y += used > 1 ? used - 1 : 0;
 		}
 		char t1[32], t2[32];
 		if (st->measured_trials)
