@@ -3,7 +3,8 @@
 # message away, leaving the form and coming back (after "save and use" in the rig editor too), a
 # value longer than its field; warnings are counted and listed with long lines wrapped, not cut;
 # the key line never drops keys silently; no display is told in the console's words; and resuming
-# a session shows the rig stored with it and the check computed from that rig.
+# a session shows the rig stored with it and the check computed from that rig; names cut to
+# their columns at 80 columns are shown whole at 110.
 . tests/e2e/lib.sh
 . tests/e2e/console.inc
 
@@ -22,10 +23,13 @@ LONGREL=a-folder-with-a-rather-long-name-for-one-study/and-another-level-below-i
 mkdir -p "$WORK/${LONGREL%/*}"
 mkproto "$WORK/$LONGREL" "$LIST" 1.5
 
-# A session to resume, run on a rig of its own (120 Hz, 80 cm) and stopped after its first trial.
+# A session to resume, run on a rig of its own (120 Hz, 80 cm) and stopped after its first trial;
+# its protocol and first block have names longer than their columns at 80 columns.
+sed -e 's/^name = e2e/name = orientation-pilot-long-name/' \
+  -e 's/^\[block warm\]/[block warm-up-with-clean-images]/' "$WORK/mine.ini" > "$WORK/named.ini"
 sed -e 's/^refresh_hz = .*/refresh_hz = 120/' -e 's/^distance_cm = .*/distance_cm = 80/' \
   -e 's/^name = .*/name = fast-lab/' "$ROOT/assets-demo/rig.ini" > "$WORK/rig120.ini"
-"$TACHIST" run "$WORK/mine.ini" --subject R01 --db "$DB" --rig "$WORK/rig120.ini" --headless --pace \
+"$TACHIST" run "$WORK/named.ini" --subject R01 --db "$DB" --rig "$WORK/rig120.ini" --headless --pace \
   --observer model:seed=1 > "$WORK/run.out" 2>&1 &
 runpid=$!
 i=0
@@ -168,6 +172,11 @@ hz_frames=$(awk 'BEGIN { printf "%d", 50 * 120 / 1000 }')   # stimulus_ms 50 at 
 spx=$("$TACHIST" calc pixels --deg 1.75 --rig "$WORK/rig120.ini" --json | sed -n 's/.*"pixels":[[:space:]]*\([0-9]*\).*/\1/p')
 tm_keys s
 expect_screen "the session to resume is listed" "interrupted"
+# Names cut to their column at 80 columns are shown whole when the terminal is wider.
+$TM resize-window -t 0 -x 110 -y 30
+expect_screen "110 columns: the protocol's whole name in the sessions list" "orientation-pilot-long-name"
+$TM resize-window -t 0 -x 80 -y 24
+expect_screen "back at 80 columns" "? more keys"
 tm_keys u
 expect_screen "resume opens the form for it" "Resume session $sid"
 expect_screen "the rig is the stored one" "(stored with session $sid)"
@@ -176,6 +185,18 @@ expect_screen "the check sizes the stimulus on the stored rig ($spx px, from cal
 expect_screen "the check counts frames at 120 Hz ($hz_frames frames of 50 ms)" "frames: stimulus $hz_frames = 50.0 ms"
 expect_no_screen "the demo rig's 60 Hz is not shown" "60 Hz"
 
+# Open it: the blocks screen names the block whole at 110 columns.
+tm_keys g
+expect_screen "the resumed session opens" "1 of 6 stored"
+$TM resize-window -t 0 -x 110 -y 30
+expect_screen "110 columns: the block's whole name on the blocks screen" "warm-up-with-clean-images"
+$TM resize-window -t 0 -x 80 -y 24
+tm_keys c
+expect_screen "closing asks first" "Close this session?"
+tm_keys y
+expect_screen "the session closes" "Session closed."
 tm_keys Escape Escape Escape
+expect_screen "after closing, back to the first screen" "Before anyone sits down"
+tm_keys Escape
 expect_screen "the console leaves" "console-exit=0"
 tm_stty_same "the terminal is as it was"
