@@ -128,12 +128,14 @@ static void draw_state(struct console *c, const struct console_pres_state *st, i
 		return;
 	}
 	for (int i = 0; i < st->ndiags && y < LINES - 3; i++)
-		console_put(c, y++, 4, w - 2, CONSOLE_BAD, st->diags[i]);
+		y += console_wrap_from(c, y, 4, w - 2, 4, 0, LINES - 3 - y, CONSOLE_BAD,
+				       st->diags[i]);
 	/* What the presentation process printed (libraries' own messages among it) helps only
 	 * when it died unexpectedly. */
 	if (st->phase == CONSOLE_PRES_CRASHED)
 		for (int i = st->nlog > 3 ? st->nlog - 3 : 0; i < st->nlog && y < LINES - 3; i++)
-			console_put(c, y++, 4, w - 2, CONSOLE_DIM, st->log[i]);
+			y += console_wrap_from(c, y, 4, w - 2, 4, 0, LINES - 3 - y, CONSOLE_DIM,
+					       st->log[i]);
 }
 
 static void blocks_draw(struct console *c, void *sv)

@@ -498,6 +498,17 @@ static void draw_too_small(struct console *c)
 	refresh();
 }
 
+/* The message line above the key line; a message too long for it wraps onto the row above
+ * (over the screen's last row) rather than being cut. */
+static void draw_message(struct console *c, enum console_role role, const char *text)
+{
+	int need = console_wrap_count(COLS - 2, 0, text);
+	need = need < 1 ? 1 : need > 2 ? 2 : need;
+	for (int y = LINES - 1 - need; y < LINES - 1; y++)
+		mvhline(y, 0, ' ', COLS);
+	console_wrap(c, LINES - 1 - need, 1, COLS - 2, need, role, text);
+}
+
 static void paint(struct console *c)
 {
 	if (COLS < CONSOLE_MIN_COLS || LINES < CONSOLE_MIN_LINES) {
@@ -510,13 +521,10 @@ static void paint(struct console *c)
 	draw_title(c, s);
 	if (s && s->draw)
 		s->draw(c, s->st);
-	if (c->asking) {
-		mvhline(LINES - 2, 0, ' ', COLS);
-		console_put(c, LINES - 2, 1, COLS - 2, CONSOLE_WARN, c->question);
-	} else if (c->msg[0]) {
-		mvhline(LINES - 2, 0, ' ', COLS);
-		console_put(c, LINES - 2, 1, COLS - 2, c->msg_role, c->msg);
-	}
+	if (c->asking)
+		draw_message(c, CONSOLE_WARN, c->question);
+	else if (c->msg[0])
+		draw_message(c, c->msg_role, c->msg);
 	draw_keys(c, s);
 	if (c->help)
 		draw_help(c, s);

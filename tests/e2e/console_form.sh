@@ -163,6 +163,7 @@ for _ in 1 2 3 4; do
 done
 tm_keys g
 expect_screen "no display is told in the console's words" "no display here to show stimuli on"
+expect_screen "the whole message is shown at 80 columns (wrapped)" "simulated timing"
 expect_no_screen "and names no command-line flag" "--headless"
 tm_keys Escape Escape
 expect_screen "back to the first screen" "Before anyone sits down"
