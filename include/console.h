@@ -89,6 +89,12 @@ int console_putf(struct console *c, int y, int x, int w, enum console_role role,
  * the rows used. */
 int console_wrap(struct console *c, int y, int x, int w, int maxrows, enum console_role role,
 		 const char *text);
+/* console_wrap with rows after the first INDENT columns further in, the first SKIP rows passed
+ * over (a page scrolled into the middle of TEXT); returns the rows drawn. */
+int console_wrap_from(struct console *c, int y, int x, int w, int indent, int skip, int maxrows,
+		      enum console_role role, const char *text);
+/* The rows console_wrap_from needs for all of TEXT at width W and INDENT. */
+int console_wrap_count(int w, int indent, const char *text);
 /* A horizontal bar of W cells, FRAC filled (0..1), in block characters when the terminal speaks
  * UTF-8 and '#' otherwise. */
 void console_bar(struct console *c, int y, int x, int w, double frac);

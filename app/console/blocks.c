@@ -128,12 +128,14 @@ static void draw_state(struct console *c, const struct console_pres_state *st, i
 		return;
 	}
 	for (int i = 0; i < st->ndiags && y < LINES - 3; i++)
-		console_put(c, y++, 4, w - 2, CONSOLE_BAD, st->diags[i]);
+		y += console_wrap_from(c, y, 4, w - 2, 4, 0, LINES - 3 - y, CONSOLE_BAD,
+				       st->diags[i]);
 	/* What the presentation process printed (libraries' own messages among it) helps only
 	 * when it died unexpectedly. */
 	if (st->phase == CONSOLE_PRES_CRASHED)
 		for (int i = st->nlog > 3 ? st->nlog - 3 : 0; i < st->nlog && y < LINES - 3; i++)
-			console_put(c, y++, 4, w - 2, CONSOLE_DIM, st->log[i]);
+			y += console_wrap_from(c, y, 4, w - 2, 4, 0, LINES - 3 - y, CONSOLE_DIM,
+					       st->log[i]);
 }
 
 static void blocks_draw(struct console *c, void *sv)
@@ -151,8 +153,16 @@ static void blocks_draw(struct console *c, void *sv)
 			     st->session_id, (unsigned long long)st->seed, st->timing_mode);
 	y++;
 	if (st->nblocks) {
-		console_put(c, y++, 2, COLS - 4, CONSOLE_DIM,
-			    "  #  block              trials       about  kind       state");
+		/* Block names get 18 columns at 80; a wider terminal gives a longer name up to half
+		 * of what it adds (the state column takes the rest). */
+		int nw = 18;
+		for (size_t i = 0; i < st->nblocks; i++) {
+			int l = (int)strlen(st->blocks[i].name), room = 18 + (COLS - CONSOLE_MIN_COLS) / 2;
+			if (l > nw)
+				nw = l < room ? l : room;
+		}
+		console_putf(c, y++, 2, COLS - 4, CONSOLE_DIM,
+			     "  #  %-*s trials       about  kind       state", nw, "block");
 		double left = 0, total = 0;
 		for (size_t i = 0; i < st->nblocks; i++) {
 			double e = block_estimate(st, &st->blocks[i]);
@@ -183,10 +193,15 @@ static void blocks_draw(struct console *c, void *sv)
 				snprintf(state + n, sizeof state - n, ", run %d times", k->runs);
 			}
 			bool sel = (int)i == b->sel && st->phase == CONSOLE_PRES_IDLE;
-			console_putf(c, y, 2, COLS - 4, sel ? CONSOLE_PICK : CONSOLE_PLAIN,
-				     "%s%2zu  %-18.18s %6zu  %10s  %-9s  %s", sel ? ">" : " ", i + 1,
-				     k->name, k->ntrials, dur,
-				     k->practice ? "practice" : k->adaptive ? "adaptive" : "", state);
+			enum console_role role = sel ? CONSOLE_PICK : CONSOLE_PLAIN;
+			int sx = 2 + console_putf(c, y, 2, COLS - 4, role,
+						  "%s%2zu  %-*.*s %6zu  %10s  %-9s  ", sel ? ">" : " ",
+						  i + 1, nw, nw, k->name, k->ntrials, dur,
+						  k->practice ? "practice"
+							      : k->adaptive ? "adaptive" : "");
+			/* A state wider than its column goes on under itself, not cut. */
+			int used = console_wrap(c, y, sx, COLS - 2 - sx, 2, role, state);
+			y += used > 1 ? used - 1 : 0;
 		}
 		char t1[32], t2[32];
 		if (st->measured_trials)

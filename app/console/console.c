@@ -225,18 +225,29 @@ int console_putf(struct console *c, int y, int x, int w, enum console_role role,
 	return console_put(c, y, x, w, role, buf);
 }
 
-int console_wrap(struct console *c, int y, int x, int w, int maxrows, enum console_role role,
-		 const char *text)
+/* The one word-wrapping rule: TEXT broken at spaces (or, in a word longer than the row, at the
+ * row's end) and at newlines into rows of W columns, rows after the first INDENT columns further
+ * in. Rows before SKIP are passed over; up to MAXROWS rows after them are drawn at (Y, X) when C
+ * is set. Returns the rows drawn, or with C NULL the rows TEXT needs in all (SKIP and MAXROWS
+ * ignored). */
+static int wrap_rows(struct console *c, int y, int x, int w, int indent, int skip, int maxrows,
+		     enum console_role role, const char *text)
 {
-	int rows = 0;
+	if (w < 1)
+		return 0;
+	if (indent < 0 || indent >= w)
+		indent = 0;
+	int row = 0, drawn = 0;
 	const char *p = text;
-	while (*p && rows < maxrows) {
+	while (*p && (!c || drawn < maxrows)) {
+		int rw = row ? w - indent : w;
 		if (*p == '\n') {
 			p++;
-			rows++;
+			if (row++ >= skip)
+				drawn++;
 			continue;
 		}
-		size_t fit = fit_bytes(p, w);
+		size_t fit = fit_bytes(p, rw);
 		size_t cut = fit;
 		const char *nl = memchr(p, '\n', fit);
 		if (nl)
@@ -248,18 +259,37 @@ int console_wrap(struct console *c, int y, int x, int w, int maxrows, enum conso
 			if (sp > 0)
 				cut = sp;
 		}
-		char line[1024];
-		if (cut >= sizeof line)
-			cut = sizeof line - 1;
-		memcpy(line, p, cut);
-		line[cut] = '\0';
-		console_put(c, y + rows, x, w, role, line);
-		rows++;
+		if (c && row >= skip) {
+			char line[1024];
+			size_t n = cut < sizeof line ? cut : sizeof line - 1;
+			memcpy(line, p, n);
+			line[n] = '\0';
+			console_put(c, y + drawn, row ? x + indent : x, rw, role, line);
+		}
+		if (row++ >= skip)
+			drawn++;
 		p += cut;
 		if (*p == ' ' || *p == '\n')
 			p++;
 	}
-	return rows;
+	return c ? drawn : row;
+}
+
+int console_wrap(struct console *c, int y, int x, int w, int maxrows, enum console_role role,
+		 const char *text)
+{
+	return wrap_rows(c, y, x, w, 0, 0, maxrows, role, text);
+}
+
+int console_wrap_from(struct console *c, int y, int x, int w, int indent, int skip, int maxrows,
+		      enum console_role role, const char *text)
+{
+	return wrap_rows(c, y, x, w, indent, skip, maxrows, role, text);
+}
+
+int console_wrap_count(int w, int indent, const char *text)
+{
+	return wrap_rows(NULL, 0, 0, w, indent, 0, 0, CONSOLE_PLAIN, text);
 }
 
 void console_bar(struct console *c, int y, int x, int w, double frac)
@@ -468,6 +498,17 @@ static void draw_too_small(struct console *c)
 	refresh();
 }
 
+/* The message line above the key line; a message too long for it wraps onto the row above
+ * (over the screen's last row) rather than being cut. */
+static void draw_message(struct console *c, enum console_role role, const char *text)
+{
+	int need = console_wrap_count(COLS - 2, 0, text);
+	need = need < 1 ? 1 : need > 2 ? 2 : need;
+	for (int y = LINES - 1 - need; y < LINES - 1; y++)
+		mvhline(y, 0, ' ', COLS);
+	console_wrap(c, LINES - 1 - need, 1, COLS - 2, need, role, text);
+}
+
 static void paint(struct console *c)
 {
 	if (COLS < CONSOLE_MIN_COLS || LINES < CONSOLE_MIN_LINES) {
@@ -480,13 +521,10 @@ static void paint(struct console *c)
 	draw_title(c, s);
 	if (s && s->draw)
 		s->draw(c, s->st);
-	if (c->asking) {
-		mvhline(LINES - 2, 0, ' ', COLS);
-		console_put(c, LINES - 2, 1, COLS - 2, CONSOLE_WARN, c->question);
-	} else if (c->msg[0]) {
-		mvhline(LINES - 2, 0, ' ', COLS);
-		console_put(c, LINES - 2, 1, COLS - 2, c->msg_role, c->msg);
-	}
+	if (c->asking)
+		draw_message(c, CONSOLE_WARN, c->question);
+	else if (c->msg[0])
+		draw_message(c, c->msg_role, c->msg);
 	draw_keys(c, s);
 	if (c->help)
 		draw_help(c, s);

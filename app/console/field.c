@@ -266,6 +266,49 @@ enum console_field_result console_field_key(struct console_field *f, int ch)
 	return CONSOLE_FIELD_GOING;
 }
 
+/* Columns of a UTF-8 string (one per code point, as the console counts them). */
+static int cols_of(const char *s)
+{
+	int n = 0;
+	for (; *s; s++)
+		if (((unsigned char)*s & 0xC0) != 0x80)
+			n++;
+	return n;
+}
+
+/* A value wider than W columns, shortened to W with a mark where text is left out, so a long
+ * value never looks complete when it is not: a path keeps its end (the file's name), other text
+ * its start. Writes into BUF and returns it. */
+static const char *elide(struct console *c, const struct console_field *f, int w, char *buf,
+			 size_t size)
+{
+	const char *mark = console_utf8(c) ? "\u2026" : "...";
+	int mcols = console_utf8(c) ? 1 : 3, keep = w - mcols;
+	bool path = f->kind == CONSOLE_FILE || f->kind == CONSOLE_OUTPATH;
+	const char *t = f->text;
+	if (path) {
+		const char *p = t + f->len;
+		int n = 0;
+		while (p > t && n < keep) {
+			p--;
+			if (((unsigned char)*p & 0xC0) != 0x80)
+				n++;
+		}
+		snprintf(buf, size, "%s%s", mark, p);
+	} else {
+		size_t b = 0;
+		int n = 0;
+		while (t[b] && n < keep) {
+			b++;
+			while (t[b] && ((unsigned char)t[b] & 0xC0) == 0x80)
+				b++;
+			n++;
+		}
+		snprintf(buf, size, "%.*s%s", (int)b, t, mark);
+	}
+	return buf;
+}
+
 void console_field_draw(struct console *c, const struct console_field *f, int y, int x, int w,
 			bool focused)
 {
@@ -284,6 +327,9 @@ void console_field_draw(struct console *c, const struct console_field *f, int y,
 	const char *shown = f->text + start;
 	if (!f->editing && !f->len)
 		shown = "(empty)";
+	char cut[CONSOLE_FIELD_MAX + 8];
+	if (!f->editing && f->len && w > 8 && cols_of(f->text) > w)
+		shown = elide(c, f, w, cut, sizeof cut);
 	console_put(c, y, x, w, !f->editing && !f->len ? CONSOLE_DIM : role, shown);
 	if (f->editing) {
 		int cx = x;

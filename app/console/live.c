@@ -79,10 +79,11 @@ static void live_draw(struct console *c, void *sv)
 	char el[32], rem[32];
 	clock_text(el, sizeof el, s->elapsed_s);
 	clock_text(rem, sizeof rem, s->remaining_s);
-	console_putf(c, y, 2, w, CONSOLE_DIM,
-		     "Elapsed %s   remaining about %s   session: %zu of %zu planned trials stored", el,
-		     rem, s->session_done, s->session_total);
-	y += 2;
+	char line[300];
+	snprintf(line, sizeof line,
+		 "Elapsed %s   remaining about %s   session: %zu of %zu planned trials stored", el,
+		 rem, s->session_done, s->session_total);
+	y += console_wrap(c, y, 2, w, 2, CONSOLE_DIM, line) + 1;
 	console_put(c, y, 2, 12, CONSOLE_DIM, "Accuracy");
 	if (isfinite(s->accuracy))
 		console_putf(c, y, 14, w - 12, CONSOLE_PLAIN, "%.1f%%  (%zu of %zu answered)",
@@ -102,11 +103,10 @@ static void live_draw(struct console *c, void *sv)
 	if (s->refresh_hz > 0)
 		snprintf(refresh, sizeof refresh, "refresh %.2f Hz (rig %.2f)", s->refresh_hz,
 			 s->refresh_nominal_hz);
-	console_putf(c, y, 14, w - 12, healthy ? CONSOLE_OK : CONSOLE_WARN,
-		     "%s, %s; %zu dropped frame%s, %zu trial%s flagged", s->timing_mode, refresh,
-		     s->dropped_frames, s->dropped_frames == 1 ? "" : "s", s->flagged_trials,
-		     s->flagged_trials == 1 ? "" : "s");
-	y += 2;
+	snprintf(line, sizeof line, "%s, %s; %zu dropped frame%s, %zu trial%s flagged",
+		 s->timing_mode, refresh, s->dropped_frames, s->dropped_frames == 1 ? "" : "s",
+		 s->flagged_trials, s->flagged_trials == 1 ? "" : "s");
+	y += console_wrap(c, y, 14, w - 12, 2, healthy ? CONSOLE_OK : CONSOLE_WARN, line) + 1;
 	console_put(c, y++, 2, w, CONSOLE_DIM,
 		    "  trial  category         answer           correct     RT ms   frames");
 	for (size_t i = 0; i < s->nlast && y < LINES - 3; i++, y++) {

@@ -10,6 +10,7 @@
 
 #include <curses.h>
 #include <math.h>
+#include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -139,11 +140,19 @@ static void draw_accuracy(struct console *c, struct results *r, int y)
 {
 	const struct analysis *a = r->a;
 	int w = COLS - 4;
-	int barx = 64, barw = COLS - barx - 3;
+	/* Block names get 14 columns at 80; a wider terminal gives a longer name more. */
+	int nw = 14;
+	for (size_t i = 0; i < a->ncells; i++) {
+		int l = a->cells[i].block_name ? (int)strlen(a->cells[i].block_name) : 0;
+		int room = 14 + (COLS - CONSOLE_MIN_COLS);
+		if (l > nw)
+			nw = l < room ? l : room;
+	}
+	int barx = 64 + nw - 14, barw = COLS - barx - 3;
 	if (barw > 30)
 		barw = 30;
-	console_put(c, y, 2, w, CONSOLE_DIM,
-		    "block          level    trials  correct     %     95% Wilson");
+	console_putf(c, y, 2, w, CONSOLE_DIM, "%-*s level    trials  correct     %%     95%% Wilson",
+		     nw, "block");
 	if (barw >= 10) {
 		console_put(c, y, barx, 2, CONSOLE_DIM, "0%");
 		console_put(c, y, barx + (barw - 1) / 2 - 1, 3, CONSOLE_DIM, "50%");
@@ -159,13 +168,13 @@ static void draw_accuracy(struct console *c, struct results *r, int y)
 		if (k->has_level)
 			snprintf(level, sizeof level, "%g", k->level);
 		if (!k->has_pc) {
-			console_putf(c, y, 2, w, CONSOLE_DIM, "%-14.14s %-8s %6lu  no answers",
+			console_putf(c, y, 2, w, CONSOLE_DIM, "%-*.*s %-8s %6lu  no answers", nw, nw,
 				     k->block_name ? k->block_name : "", level, k->trials);
 			continue;
 		}
 		console_putf(c, y, 2, barx - 3, CONSOLE_PLAIN,
-			     "%-14.14s %-8s %6lu  %7lu  %5.1f  %5.1f-%5.1f", k->block_name ? k->block_name : "",
-			     level, k->trials, k->k, 100 * k->pc, 100 * k->lower, 100 * k->upper);
+			     "%-*.*s %-8s %6lu  %7lu  %5.1f  %5.1f-%5.1f", nw, nw,
+			     k->block_name ? k->block_name : "", level, k->trials, k->k, 100 * k->pc, 100 * k->lower, 100 * k->upper);
 		if (barw >= 10)
 			draw_interval(c, y, barx, barw, k->lower, k->pc, k->upper);
 	}
@@ -199,15 +208,18 @@ static void draw_curve(struct console *c, struct results *r, int y)
 		if (fr->threshold_ok)
 			snprintf(thr, sizeof thr, "; %.0f%% correct at level %.4g",
 				 100 * fr->pc_threshold, fr->threshold);
-		console_putf(c, y++, 2, w, CONSOLE_OK,
-			     "%s fit%s: alpha %.4g, beta %.4g%s, lapse %.3f%s",
-			     psyfn_shape_name(fr->f.shape),
-			     fr->f.beta < 0 ? " (accuracy falls as the level rises)" : "",
-			     fr->f.alpha, fr->f.beta, fr->slope_bounded ? " (steepness bound)" : "",
-			     fr->f.lambda, thr);
+		char line[400];
+		snprintf(line, sizeof line, "%s fit%s: alpha %.4g, beta %.4g%s, lapse %.3f%s",
+			 psyfn_shape_name(fr->f.shape),
+			 fr->f.beta < 0 ? " (accuracy falls as the level rises)" : "",
+			 fr->f.alpha, fr->f.beta, fr->slope_bounded ? " (steepness bound)" : "",
+			 fr->f.lambda, thr);
+		y += console_wrap_from(c, y, 2, w, 4, 0, 3, CONSOLE_OK, line);
 	} else {
-		console_putf(c, y++, 2, w, CONSOLE_WARN, "no fit: %s",
-			     fr->reason[0] ? fr->reason : "the data cannot support one");
+		char line[400];
+		snprintf(line, sizeof line, "no fit: %s",
+			 fr->reason[0] ? fr->reason : "the data cannot support one");
+		y += console_wrap_from(c, y, 2, w, 4, 0, 3, CONSOLE_WARN, line);
 	}
 	if (!s->npts)
 		return;
@@ -284,20 +296,35 @@ static void draw_confusion(struct console *c, struct results *r, int y)
 	char lv[40] = "all trials";
 	if (k->has_level)
 		snprintf(lv, sizeof lv, "level %g", k->level);
-	console_putf(c, y++, 2, w, CONSOLE_PLAIN,
-		     "%s (%zu of %zu, Left/Right); rows: true category, columns: answer; shade = share "
-		     "of the row", lv, r->level + 1, a->nconf);
+	char intro[300];
+	snprintf(intro, sizeof intro, "%s (%zu of %zu, Left/Right); rows: true category, columns: "
+		 "answer; shade = share of the row", lv, r->level + 1, a->nconf);
+	y += console_wrap(c, y, 2, w, 2, CONSOLE_PLAIN, intro);
 	size_t n = a->ncat;
-	int lab = 12, cell = n <= 8 ? 7 : 3;
+	/* Row labels and column heads as wide as the longest name allows: a wider terminal shows
+	 * more of each name, never the same cut one. A head wider than its cell alternates over two
+	 * rows, each then twice the cell wide. */
+	int longest = 1;
+	for (size_t j = 0; j < n; j++) {
+		int l = (int)strlen(a->cats[j]);
+		longest = l > longest ? l : longest;
+	}
+	int lab = longest + 2 < 12 ? 12 : longest + 2 > 24 ? 24 : longest + 2;
+	int cell = n <= 8 ? 7 : 3;
+	while (cell < 16 && cell <= longest && 2 + lab + (int)n * (cell + 1) <= COLS - 2)
+		cell++;
 	size_t fit_cols = (size_t)((COLS - 4 - lab) / cell);
 	size_t ncol = n < fit_cols ? n : fit_cols;
+	bool two = longest > cell - 1;
 	y++;
-	for (size_t j = 0; j < ncol; j++)
-		console_putf(c, y, 2 + lab + (int)j * cell, cell, CONSOLE_DIM, "%-*.*s", cell - 1,
-			     cell - 1, a->cats[j]);
-	y++;
+	for (size_t j = 0; j < ncol; j++) {
+		int hw = two ? 2 * cell - 1 : cell - 1;
+		console_putf(c, y + (two && j % 2), 2 + lab + (int)j * cell, hw + 1, CONSOLE_DIM,
+			     "%-*.*s", hw, hw, a->cats[j]);
+	}
+	y += two ? 2 : 1;
 	for (size_t i = 0; i < n && y < LINES - 4; i++, y++) {
-		console_putf(c, y, 2, lab - 1, CONSOLE_PLAIN, "%-*.*s", lab - 1, lab - 1, a->cats[i]);
+		console_putf(c, y, 2, lab - 1, CONSOLE_PLAIN, "%-*.*s", lab - 2, lab - 2, a->cats[i]);
 		unsigned long rn = k->row_n[i];
 		for (size_t j = 0; j < ncol; j++) {
 			unsigned long cnt = k->counts[i * n + j];
@@ -307,7 +334,7 @@ static void draw_confusion(struct console *c, struct results *r, int y)
 			enum console_role role = i == j ? CONSOLE_OK : CONSOLE_WARN;
 			for (int q = 0; q < 2; q++)
 				console_put(c, y, x + q, 1, rn ? role : CONSOLE_DIM, rn ? g : " ");
-			if (cell == 7 && rn)
+			if (cell >= 7 && rn)
 				console_putf(c, y, x + 2, 4, CONSOLE_PLAIN, "%4.0f", 100 * share);
 		}
 	}
@@ -327,34 +354,49 @@ static void draw_confusion(struct console *c, struct results *r, int y)
 
 /* ---- timing ---- */
 
+/* One labelled line of the timing view at *Y, wrapped under its value (18 columns in), never
+ * cut; advances *Y. */
+static void timing_line(struct console *c, int *y, enum console_role role, const char *fmt, ...)
+	__attribute__((format(printf, 4, 5)));
+static void timing_line(struct console *c, int *y, enum console_role role, const char *fmt, ...)
+{
+	char buf[400];
+	va_list ap;
+	va_start(ap, fmt);
+	vsnprintf(buf, sizeof buf, fmt, ap);
+	va_end(ap);
+	int room = LINES - 3 - *y;
+	if (room > 0)
+		*y += console_wrap_from(c, *y, 2, COLS - 4, 18, 0, room, role, buf);
+}
+
 static void draw_timing(struct console *c, struct results *r, int y)
 {
 	const struct analysis *a = r->a;
-	int w = COLS - 4;
 	for (size_t i = 0; i < a->ntiming && y < LINES - 3; i++) {
 		const struct analysis_timing *t = &a->timing[i];
-		console_putf(c, y++, 2, w, CONSOLE_PLAIN, "Timing mode       %s%s", t->timing_mode,
-			     t->timing_mode && !strcmp(t->timing_mode, "simulated")
-				     ? " (no real display: the frame times are a virtual clock's)" : "");
+		timing_line(c, &y, CONSOLE_PLAIN, "Timing mode       %s%s", t->timing_mode,
+			    t->timing_mode && !strcmp(t->timing_mode, "simulated")
+				    ? " (no real display: the frame times are a virtual clock's)" : "");
 		if (t->refresh_hz > 0)
-			console_putf(c, y++, 2, w, CONSOLE_PLAIN, "Measured refresh  %.3f Hz", t->refresh_hz);
+			timing_line(c, &y, CONSOLE_PLAIN, "Measured refresh  %.3f Hz", t->refresh_hz);
 		else
-			console_put(c, y++, 2, w, CONSOLE_PLAIN, "Measured refresh  not measured");
-		console_putf(c, y++, 2, w, CONSOLE_PLAIN, "Exact exposure    %lu of %lu trials (%.1f%%)",
-			     t->exact, t->trials, t->trials ? 100.0 * t->exact / t->trials : 0);
-		console_putf(c, y++, 2, w, t->timing_faults ? CONSOLE_WARN : CONSOLE_OK,
-			     "Timing faults     %lu trial%s; %lu dropped frame%s in %lu trial%s",
-			     t->timing_faults, t->timing_faults == 1 ? "" : "s", t->dropped_frames,
-			     t->dropped_frames == 1 ? "" : "s", t->trials_with_drops,
-			     t->trials_with_drops == 1 ? "" : "s");
-		console_putf(c, y++, 2, w, CONSOLE_PLAIN, "Anticipations     %lu;  timeouts %lu",
-			     t->anticipations, t->timeouts);
+			timing_line(c, &y, CONSOLE_PLAIN, "Measured refresh  not measured");
+		timing_line(c, &y, CONSOLE_PLAIN, "Exact exposure    %lu of %lu trials (%.1f%%)",
+			    t->exact, t->trials, t->trials ? 100.0 * t->exact / t->trials : 0);
+		timing_line(c, &y, t->timing_faults ? CONSOLE_WARN : CONSOLE_OK,
+			    "Timing faults     %lu trial%s; %lu dropped frame%s in %lu trial%s",
+			    t->timing_faults, t->timing_faults == 1 ? "" : "s", t->dropped_frames,
+			    t->dropped_frames == 1 ? "" : "s", t->trials_with_drops,
+			    t->trials_with_drops == 1 ? "" : "s");
+		timing_line(c, &y, CONSOLE_PLAIN, "Anticipations     %lu;  timeouts %lu",
+			    t->anticipations, t->timeouts);
 		y++;
 	}
-	if (a->rt.n && y < LINES - 3)
-		console_putf(c, y++, 2, w, CONSOLE_PLAIN,
-			     "Correct RTs       median %.0f ms, IQR %.0f ms, 10%% trimmed mean %.0f ms (n = %zu)",
-			     a->rt.median, a->rt.iqr, a->rt.trimmed, a->rt.n);
+	if (a->rt.n)
+		timing_line(c, &y, CONSOLE_PLAIN, "Correct RTs       median %.0f ms, IQR %.0f ms, 10%% "
+			    "trimmed mean %.0f ms (n = %zu)", a->rt.median, a->rt.iqr, a->rt.trimmed,
+			    a->rt.n);
 }
 
 static void results_draw(struct console *c, void *st)
@@ -365,18 +407,25 @@ static void results_draw(struct console *c, void *st)
 		console_wrap(c, y, 2, w, 4, CONSOLE_BAD, r->error);
 		return;
 	}
-	console_putf(c, y++, 2, w, CONSOLE_HEAD, "Session %.8s  subject %s  %s  %s  %zu trials",
-		     r->ss.id, r->ss.subject ? r->ss.subject : "", r->ss.protocol_name ? r->ss.protocol_name : "",
-		     store_status_name(r->ss.status), r->ntrials);
+	char head[300];
+	snprintf(head, sizeof head, "Session %.8s  subject %s  %s  %s  %zu trials", r->ss.id,
+		 r->ss.subject ? r->ss.subject : "", r->ss.protocol_name ? r->ss.protocol_name : "",
+		 store_status_name(r->ss.status), r->ntrials);
+	y += console_wrap(c, y, 2, w, 2, CONSOLE_HEAD, head);
 	int x = 2;
 	for (int v = 0; v < VIEW_COUNT; v++) {
 		char tab[32];
 		snprintf(tab, sizeof tab, " %d %s ", v + 1, view_names[v]);
 		x += console_put(c, y, x, COLS - x - 1, (int)r->view == v ? CONSOLE_PICK : CONSOLE_DIM, tab) + 1;
 	}
-	if (r->a && r->a->npractice)
-		console_putf(c, y, x + 2, COLS - x - 3, CONSOLE_DIM, "(%zu practice trials left out)",
-			     r->a->npractice);
+	if (r->a && r->a->npractice) {
+		/* The shorter wording where the longer would be cut (80 columns). */
+		char note[64];
+		snprintf(note, sizeof note, "(%zu practice trials left out)", r->a->npractice);
+		if (x + 2 + (int)strlen(note) > COLS - 1)
+			snprintf(note, sizeof note, "(%zu practice left out)", r->a->npractice);
+		console_put(c, y, x + 2, COLS - x - 3, CONSOLE_DIM, note);
+	}
 	y += 2;
 	if (!r->a) {
 		console_put(c, y, 2, w, CONSOLE_DIM, "No trials stored in this session yet.");

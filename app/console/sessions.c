@@ -118,8 +118,21 @@ static void sessions_draw(struct console *c, void *st)
 	}
 	console_putf(c, y++, 2, w, CONSOLE_HEAD, "%zu session%s", s->n, s->n == 1 ? "" : "s");
 	y++;
-	console_put(c, y++, 2, w, CONSOLE_DIM,
-		    "  session   subject      protocol       started (UTC)    status      trials");
+	/* Subject and protocol get 12 and 14 columns at 80; a wider terminal shares what it adds
+	 * between the two, as their longest values need. */
+	int sw = 12, pw = 14, extra = COLS - CONSOLE_MIN_COLS;
+	for (size_t i = 0; i < s->n; i++) {
+		const struct store_session *ss = row(s, i);
+		int ls = ss->subject ? (int)strlen(ss->subject) : 0;
+		int lp = ss->protocol_name ? (int)strlen(ss->protocol_name) : 0;
+		if (ls > sw)
+			sw = ls < 12 + extra / 2 ? ls : 12 + extra / 2;
+		if (lp > pw)
+			pw = lp < 14 + extra / 2 ? lp : 14 + extra / 2;
+	}
+	console_putf(c, y++, 2, w, CONSOLE_DIM,
+		     "  session   %-*s %-*s started (UTC)    status      trials", sw, "subject", pw,
+		     "protocol");
 	/* Under the list: the chosen session's notes (the last ones that fit), or the note being
 	 * typed. */
 	int note_rows = s->note.editing ? 3 : s->nnotes ? (int)(s->nnotes < 3 ? s->nnotes : 3) + 1
@@ -143,9 +156,9 @@ static void sessions_draw(struct console *c, void *st)
 		enum console_role role = i == s->sel ? CONSOLE_PICK
 				       : ss->status == STORE_INTERRUPTED ? CONSOLE_WARN
 				       : ss->status == STORE_ABORTED ? CONSOLE_WARN : CONSOLE_PLAIN;
-		console_putf(c, y, 2, w, role, "%s %.8s  %-12.12s %-14.14s %-16s %-11s %6zu",
-			     i == s->sel ? ">" : " ", ss->id, ss->subject ? ss->subject : "",
-			     ss->protocol_name ? ss->protocol_name : "", started,
+		console_putf(c, y, 2, w, role, "%s %.8s  %-*.*s %-*.*s %-16s %-11s %6zu",
+			     i == s->sel ? ">" : " ", ss->id, sw, sw, ss->subject ? ss->subject : "",
+			     pw, pw, ss->protocol_name ? ss->protocol_name : "", started,
 			     store_status_name(ss->status), ss->ntrials);
 	}
 	y = LINES - 3 - note_rows;

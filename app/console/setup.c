@@ -267,15 +267,20 @@ static void setup_draw(struct console *c, void *st)
 		y += console_wrap(c, y, vx, w, bottom - y + 1, CONSOLE_DIM, s->epoch_line);
 	char line[1024];
 	int shown = 0;
+	/* Each problem wraps (never cut); one that no longer fits, with a row kept for the notice
+	 * when more follow, is left to p. */
 	for (size_t i = (size_t)s->scroll; i < s->diags.n && y <= bottom; i++, shown++) {
-		if (y == bottom && i + 1 < s->diags.n) {
+		diag_format(&s->diags.v[i], line, sizeof line);
+		int need = console_wrap_count(w, 4, line);
+		int room = bottom - y + 1 - (i + 1 < s->diags.n ? 1 : 0);
+		if (need > room) {
 			console_putf(c, y, vx, w, CONSOLE_DIM, "... %zu more: press p to see all",
 				     s->diags.n - i);
 			break;
 		}
-		diag_format(&s->diags.v[i], line, sizeof line);
-		console_put(c, y++, vx, w,
-			    s->diags.v[i].level == DIAG_ERROR ? CONSOLE_BAD : CONSOLE_WARN, line);
+		y += console_wrap_from(c, y, vx, w, 4, 0, need,
+				       s->diags.v[i].level == DIAG_ERROR ? CONSOLE_BAD : CONSOLE_WARN,
+				       line);
 	}
 }
 
