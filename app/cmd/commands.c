@@ -299,5 +299,8 @@ void cmd_print_man(FILE *out)
 	      ".SH FILES\n"
 	      ".TP\n.I tachist.db\nThe default database, in the current folder.\n"
 	      ".SH SEE ALSO\n"
-	      "The manual in the source tree:\n.IR README.md ,\n.IR docs/ .\n", out);
+	      "The manual in the source tree:\n"
+	      ".I docs/commands.md\n(every command),\n"
+	      ".I docs/files.md\n(protocol, rig, stimulus list) and the other files in\n"
+	      ".IR docs/ .\n", out);
 }

@@ -87,7 +87,7 @@ expect_eq "QUEST staircases run their 10 trials each" 20 "$(q "$WORK/a.db" 'sele
 #    level nearest the requested one on the log10 axis, and every requested up-down level follows
 #    from the answers before it — two correct in a row make it 0.1 log10 units harder (higher noise),
 #    one error 0.1 easier, kept within the block's levels 8..32 — and each staircase stops after
-#    its 5th reversal (Levitt's transformed up-down rule as README describes it).
+#    its 5th reversal (Levitt's transformed up-down rule as docs/files.md describes it).
 q "$WORK/a.db" "select block, staircase, level, level_requested, correct from trials order by trial" >"$WORK/rows.txt"
 expect_eq "snapping and the up-down rule re-derived from the stored rows" "ok" "$($PY - "$WORK/rows.txt" <<'PYEOF'
 import math, sys
