@@ -134,7 +134,7 @@ expect_screen "back on the first screen" "Before anyone sits down"
 expect_screen "the first screen counts the stored sessions" "1 session stored"
 tm_keys s
 expect_screen "sessions list" "1 session"
-expect_screen "sessions list: subject, status and trials" "complete         36"
+expect_screen "sessions list: subject, status and trials" "complete        36"
 tm_keys Enter
 expect_screen "results from the sessions list" "1 accuracy"
 tm_keys q q q
