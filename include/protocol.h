@@ -4,7 +4,7 @@
  * display settings and one or more blocks. Paths inside are relative to the protocol file and are
  * stored resolved. The pure lookups declared here live in app/core/protocol_lookup.c; reading,
  * parsing and freeing a protocol file is protocol_file.h (app/io/protocol.c); the key names are
- * documented in README.md. */
+ * documented in docs/files.md. */
 #ifndef TACHIST_PROTOCOL_H
 #define TACHIST_PROTOCOL_H
 

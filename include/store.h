@@ -8,7 +8,7 @@
  * This header is the contract the run layer, the console, report, export and pool use. The store
  * module owns it and may extend it; the write side below is what the trial loop needs.
  *
- * Tables (README "Database and exported tables" documents every column):
+ * Tables (docs/storage.md documents every column):
  *   sessions (id UUID text, subject, protocol and rig text, hashes, seed, status, ...)
  *   trials   (one row per trial, keyed by (session_id, trial); text columns copied from the
  *             protocol and list so the database stands alone)

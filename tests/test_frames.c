@@ -28,8 +28,8 @@ static void frames_testOneFortyFour(void **state)
 	assert_false(frames_exact(100, 144));
 }
 
-/* 100 ms at 85 Hz is exactly 8.5 frames: the documented rule (round half to even, README
- * "Timing") gives 8 frames = 94.1 ms; 9.5 frames goes to 10. */
+/* 100 ms at 85 Hz is exactly 8.5 frames: the documented rule (round half to even, docs/timing.md)
+ * gives 8 frames = 94.1 ms; 9.5 frames goes to 10. */
 static void frames_testTieHalfEven(void **state)
 {
 	(void)state;

@@ -167,7 +167,7 @@ static void plan_testFixedAndFilters(void **state)
 }
 
 /* Frames at 85 Hz: 400 ms = 34 frames exactly; 100 ms = 8.5 frames, a tie, rounded to even = 8
- * (README "Timing"), with a warning at its line; 500 ms = 42.5 -> 42 frames. Duration: per trial
+ * (docs/timing.md), with a warning at its line; 500 ms = 42.5 -> 42 frames. Duration: per trial
  * 34 + 0 + 8 + 0 frames, 600 ms assumed RT (response unlimited), no feedback outside practice, 42
  * frames of ITI, and 120 flips of refresh measurement per block — arithmetic from the plan's
  * documented rule. */

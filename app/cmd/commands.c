@@ -68,8 +68,8 @@ static const struct cmd commands[] = {
 	 "tachist fit FILE.csv --m N [--shape weibull|logistic|normal] [--lapse free|0|VALUE]\n"
 	 "            [--pc P] [--boot N] [--seed N] [--json]\n",
 	 "Fits by maximum likelihood, with the guess rate 1/N, to a CSV of single trials "
-	 "(level,correct) or of counts (level,correct,total). A fit the data cannot support is said "
-	 "in words and exits 1; no number is printed for it.",
+	 "(level,correct) or of counts per level (level,n,k: trials, correct). A fit the data cannot "
+	 "support is said in words and exits 1; no number is printed for it.",
 	 cmd_fit_opts, cmd_fit},
 	{"calc", "visual angle, pixels, frames, d' and intervals at the bench",
 	 "tachist calc angle --size CM --distance CM [--json]\n"
@@ -301,5 +301,8 @@ void cmd_print_man(FILE *out)
 	      ".SH FILES\n"
 	      ".TP\n.I tachist.db\nThe default database, in the current folder.\n"
 	      ".SH SEE ALSO\n"
-	      "The manual in the source tree:\n.IR README.md ,\n.IR docs/ .\n", out);
+	      "The manual in the source tree:\n"
+	      ".I docs/commands.md\n(every command),\n"
+	      ".I docs/files.md\n(protocol, rig, stimulus list) and the other files in\n"
+	      ".IR docs/ .\n", out);
 }

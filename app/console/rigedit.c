@@ -1,9 +1,10 @@
 /* rigedit — the rig profile as numbers the experimenter can change: screen size in cm and px,
  * viewing distance, refresh rate, with pixels per degree and the protocol's stimulus size in
  * pixels (and the degrees those pixels really subtend) worked out as the numbers change. Saving
- * writes a rig INI (the keys of README "Rig profile", validated by rig_parse first, so a saved
- * file always loads; every section, key and comment the form does not edit is kept, such as
- * [luminance]) atomically to a path the experimenter types, by default the profile the program looks
+ * writes a rig INI (the keys of docs/files.md "Rig profile", validated by rig_parse first, so a
+ * saved file always loads; every section, key and comment the form does not edit is kept, such as
+ * [luminance]) atomically to a path the experimenter types: the profile being edited, or for a new
+ * one (or the demo's) the profile the program looks
  * for first ($XDG_CONFIG_HOME/tachist/rig.ini), and hands the path back to the set-up form. */
 #include "console.h"
 
@@ -287,7 +288,7 @@ void console_rig_push(struct console *c, const char *path, double size_deg,
 		e->have_base = true;
 	diag_clear(&d);
 	const struct rig *b = &e->base;
-	/* Ranges as the rig parser accepts them (README "Rig profile"). */
+	/* Ranges as the rig parser accepts them (docs/files.md "Rig profile"). */
 	number_field(&e->f[ROW_WCM], "width", CONSOLE_NUMBER, b->width_cm, 0.1, 1000);
 	number_field(&e->f[ROW_HCM], "height", CONSOLE_NUMBER, b->height_cm, 0.1, 1000);
 	number_field(&e->f[ROW_WPX], "width", CONSOLE_INTEGER, b->width_px, 1, 100000);

@@ -287,7 +287,7 @@ static void items(struct analysis *a, const struct analysis_row **v, size_t n, d
 			/* A flag needs evidence as well as the proportion: the item's Wilson 95%
 			 * interval must lie wholly above (ceiling) or below (floor) the point halfway
 			 * between chance and 1, so "0 of 1" or "1 of 1" flags nothing (rule: ours,
-			 * common practice, no source; README "Items"). */
+			 * common practice, no source; docs/methods.md "Items"). */
 			double lo = 0, hi = 1, mid = 1.0 / o->m + (1 - 1.0 / o->m) / 2;
 			if (it->n)
 				stats_ci(STATS_CI_WILSON, it->k, it->n, 0.95, &lo, &hi);

@@ -303,8 +303,8 @@ int fit_direction(const struct fit_point *pts, size_t npts)
  * from 0.1 to 0.9. Steeper functions are indistinguishable from a step on the levels tested, and
  * without the bound the ML slope of such data runs to infinity. The 10–90% width of each shape:
  * logistic 2·ln 9·β, normal 2·z(0.9)·β, Weibull (ln(−ln 0.1) − ln(−ln 0.9))/β. Recalled from
- * memory: psignifit 4 (Schütt, Harmeling, Macke & Wichmann 2016, Vision Research 122) lets its
- * width prior fall to zero below the smallest level spacing for the same reason. */
+ * memory: the Bayesian method of Schütt, Harmeling, Macke & Wichmann (2016, Vision Research 122)
+ * lets its prior on the width fall to zero below the smallest level spacing for the same reason. */
 static double slope_bound(const struct model *md)
 {
 	double g = INFINITY, prev = NAN;

@@ -5,7 +5,7 @@
  * their own. A pass over the file calls open/key/close per section instance, then each kind's
  * finish() checks what spans sections (required sections, block references). Every problem is added
  * to the diagnostics with the protocol's FILE:LINE and parsing goes on, so one `check` shows all of
- * them. Key names and ranges are documented in README.md ("Protocol file"); keep both in step.
+ * them. Key names and ranges are documented in docs/files.md ("Protocol file"); keep both in step.
  *
  * Adding a section kind: write a `const struct protocol_section` in its own file (using the
  * protocol_ctx_* and protocol_value_* helpers), declare it in its header, and add one row to

@@ -1,5 +1,5 @@
 /* protocol_adaptive — the "[adaptive NAME]" section kind of the protocol file (see
- * protocol_adaptive.h and README.md, "Adaptive procedures").
+ * protocol_adaptive.h and docs/files.md, "Adaptive procedures").
  *
  * Each instance becomes one struct adapt_spec appended to protocol.adaptive. Plain keys go
  * straight into the spec through the key table; lists (start, prior_mean, halve_after) and the

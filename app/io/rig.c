@@ -6,7 +6,7 @@
  *   [luminance] the photometer calibration, read by rig_lum.c
  *
  * A table of keys (type, range, place in struct rig) drives the parse; every problem becomes a
- * FILE:LINE diagnostic and parsing goes on. Documented in README.md ("Rig profile"). */
+ * FILE:LINE diagnostic and parsing goes on. Documented in docs/files.md ("Rig profile"). */
 #include "rig_file.h"
 
 #include <ctype.h>

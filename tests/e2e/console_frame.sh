@@ -71,7 +71,7 @@ expect_screen "SIGTERM ends the console" "console-exit=1"
 tm_stty_same "terminal modes restored after SIGTERM"
 
 # The demo-rig fallback is told on the first screen, not printed before curses starts.
-tm_console "2>$WORK/console.err"
+tm_console "2>\"$WORK/console.err\""
 expect_screen "the fallback shows on the first screen" "demo rig: describe"
 check "nothing was printed to the terminal before the screen" test ! -s "$WORK/console.err"
 tm_keys C-c

@@ -174,3 +174,16 @@ expect_exit "missing --m is a usage error" 2 "$TACHIST" fit "$WORK/g2.csv"
 expect_exit "--m 1 is a usage error" 2 "$TACHIST" fit "$WORK/g2.csv" --m 1
 expect_exit "bad --shape is a usage error" 2 "$TACHIST" fit "$WORK/g2.csv" --m 2 --shape gumbel
 expect_exit "bad --lapse is a usage error" 2 "$TACHIST" fit "$WORK/g2.csv" --m 2 --lapse lots
+
+# The two forms --help names are the headers the reader takes: each column list it gives in
+# parentheses, as a header over two rows, reads without a "must be" or "column" error.
+"$TACHIST" fit --help | tr '\n' ' ' | grep -o '(level,[a-z,]*' | sed 's/^(//' >"$WORK/forms"
+expect_eq "fit --help names two input forms" 2 "$(wc -l <"$WORK/forms" | tr -d ' ')"
+while read -r form; do
+  case "$form" in
+    *,*,*) printf '%s\n1,10,6\n2,10,9\n' "$form" >"$WORK/form.csv" ;;
+    *) printf '%s\n1,0\n2,1\n' "$form" >"$WORK/form.csv" ;;
+  esac
+  "$TACHIST" fit "$WORK/form.csv" --m 2 --boot 0 --lapse 0 >/dev/null 2>"$WORK/form.err"
+  check "the form $form from --help is read" test -z "$(grep 'form.csv:[0-9]*: error' "$WORK/form.err")"
+done <"$WORK/forms"

@@ -9,7 +9,7 @@
  * copy is the clean image plus grey Gaussian noise (the same value in R, G and B) whose L2 norm over
  * all pixels and the three colour channels, in [0, 1] units, equals the budget after clipping to
  * [0, 1] and rounding to 8 bits: the noise is rescaled a few times until the achieved norm matches
- * (within 0.2%). README "Demo scenario" describes the set. */
+ * (within 0.2%). docs/demo.md describes the set. */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
