@@ -84,6 +84,13 @@ enum forecast_bracket forecast_bracketing(const double *levels, size_t n, double
 /* "brackets" | "partly" | "outside". */
 const char *forecast_bracket_name(enum forecast_bracket b);
 
+/* The observer a pilot implies: N answered trials (LEVELS[i], CORRECT[i] in {0, 1}) of an
+ * M-choice task pooled and fitted as `report` fits them (Weibull where accuracy rises with the
+ * level, logistic where it falls, lapse free, no bootstrap) into OUT (rt 600 ms, seed 1). Returns
+ * 0, or -1 with the fitter's reason in WHY. */
+int forecast_truth_from_trials(const double *levels, const int *correct, size_t n, int m,
+			       struct observer_spec *out, char *why, size_t len);
+
 /* Simulates O->runs studies of design D and summarises them into R (release with
  * forecast_result_clear). PROGRESS may be NULL. Returns 0, or -1 with a sentence in ERR when the
  * design cannot run (no levels, an adaptive spec that does not fit its items). */

@@ -256,25 +256,17 @@ static int pilot_truth(struct ctx *c)
 		fprintf(stderr, "tachist forecast: the pilot has %d choices, the protocol %zu\n", m,
 			c->in.proto.nchoices);
 	} else {
-		size_t npts;
-		struct fit_point *pts = fit_group(lv, ok, n, &npts);
-		struct fit_opts fo;
-		fit_opts_default(&fo, m);
-		fo.nboot = 0;
-		fo.shape = fit_direction(pts, npts) < 0 ? PSYFN_LOGISTIC : PSYFN_WEIBULL;
-		struct fit_result fr;
-		if (fit_run(pts, npts, &fo, &fr) < 0) {
+		char why[320];
+		if (forecast_truth_from_trials(lv, ok, n, m, &c->fo.truth, why, sizeof why) < 0) {
 			fprintf(stderr, "tachist forecast: the pilot (%zu trials) cannot be fitted: %s\n",
-				n, fr.reason);
+				n, why);
 		} else {
-			c->fo.truth = (struct observer_spec){fr.f.shape, fr.f.alpha, fr.f.beta,
-							     fr.f.lambda, 600, 1};
+			const struct observer_spec *t = &c->fo.truth;
 			snprintf(c->truth_text, sizeof c->truth_text, "pilot fit of %zu trials: %s, "
-				 "alpha %.4g, beta %.4g, lapse %.3g", n, psyfn_shape_name(fr.f.shape),
-				 fr.f.alpha, fr.f.beta, fr.f.lambda);
+				 "alpha %.4g, beta %.4g, lapse %.3g", n, psyfn_shape_name(t->shape),
+				 t->threshold, t->slope, t->lapse);
 			rc = 0;
 		}
-		free(pts);
 	}
 	free(lv);
 	free(ok);

@@ -64,6 +64,26 @@ const char *forecast_bracket_name(enum forecast_bracket b)
 	return b == FORECAST_BRACKETS ? "brackets" : b == FORECAST_PARTLY ? "partly" : "outside";
 }
 
+int forecast_truth_from_trials(const double *levels, const int *correct, size_t n, int m,
+			       struct observer_spec *out, char *why, size_t len)
+{
+	size_t npts;
+	struct fit_point *pts = fit_group(levels, correct, n, &npts);
+	struct fit_opts fo;
+	fit_opts_default(&fo, m);
+	fo.nboot = 0;
+	fo.shape = pts && fit_direction(pts, npts) < 0 ? PSYFN_LOGISTIC : PSYFN_WEIBULL;
+	struct fit_result fr;
+	int rc = fit_run(pts, npts, &fo, &fr);
+	free(pts);
+	if (rc < 0) {
+		snprintf(why, len, "%s", fr.reason);
+		return -1;
+	}
+	*out = (struct observer_spec){fr.f.shape, fr.f.alpha, fr.f.beta, fr.f.lambda, 600, 1};
+	return 0;
+}
+
 /* ---- one simulated study -------------------------------------------------------------------- */
 
 struct job {
