@@ -511,9 +511,13 @@ static void print_text(const struct ctx *c, int best)
 {
 	const struct forecast_result *r0 = &c->rows[0].r;
 	printf("observer: %s\n", c->truth_text);
-	printf("threshold at pc %.3g: %.4g; 25-75%% of the curve's span: %.4g to %.4g\n",
-	       c->fo.fit.pc_threshold, r0->true_threshold, fmin(r0->x25, r0->x75),
-	       fmax(r0->x25, r0->x75));
+	if (isfinite(r0->true_threshold) && isfinite(r0->x25) && isfinite(r0->x75))
+		printf("threshold at pc %.3g: %.4g; 25-75%% of the curve's span: %.4g to %.4g\n",
+		       c->fo.fit.pc_threshold, r0->true_threshold, fmin(r0->x25, r0->x75),
+		       fmax(r0->x25, r0->x75));
+	else
+		printf("the observer's curve never reaches pc %.3g: no threshold to estimate\n",
+		       c->fo.fit.pc_threshold);
 	printf("%ld runs per design, %ld bootstrap samples each, seed %llu; fitted with %s, lapse "
 	       "free\n\n", c->o.runs, c->o.boot, c->o.seed, psyfn_shape_name(c->fo.fit.shape));
 	for (int s = 0; s < c->nsets; s++) {

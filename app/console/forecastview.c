@@ -141,8 +141,12 @@ static void build(struct console *c, const struct store_trial *t, size_t n, int 
 			forecast_result_clear(&r);
 		}
 	add(out, "%s", "");
-	add(out, "Threshold at pc %.3g: %.4g; 25-75%% of the curve's span %.4g to %.4g",
-	    o.fit.pc_threshold, thr, fmin(x25, x75), fmax(x25, x75));
+	if (isfinite(thr) && isfinite(x25) && isfinite(x75))
+		add(out, "Threshold at pc %.3g: %.4g; 25-75%% of the curve's span %.4g to %.4g",
+		    o.fit.pc_threshold, thr, fmin(x25, x75), fmax(x25, x75));
+	else
+		add(out, "The fitted curve never reaches pc %.3g: no threshold to estimate.",
+		    o.fit.pc_threshold);
 	if (br != FORECAST_BRACKETS)
 		add(out, "Warning: these levels do not bracket the threshold: %s of the curve's 25-75%% "
 		    "range lies outside them.", br == FORECAST_OUTSIDE ? "all" : "part");

@@ -151,3 +151,9 @@ expect_exit "a bad --trials list is a usage error" 2 F "$ROOT/protocols/demo.ini
 expect_exit "a bad --levels set is a problem" 1 F "$ROOT/protocols/demo.ini" --rig "$RIG" --observer "$MODEL" --levels 3
 expect_exit "a bad model spec is a problem" 1 F "$ROOT/protocols/demo.ini" --rig "$RIG" --observer model:shape=cubic
 expect_exit "a missing pilot database is a problem" 1 F "$ROOT/protocols/demo.ini" --rig "$RIG" --db "$WORK/none.db"
+
+# 7. A model whose curve never reaches the threshold's proportion correct: said, no NaN.
+expect_exit "an unreachable threshold exits 0" 0 F "$ROOT/protocols/demo.ini" --rig "$RIG" \
+  --observer model:shape=logistic,threshold=20,slope=-4,lapse=0.45 --runs 4 --boot 10 --trials 10
+check "it is said" grep -q "never reaches pc" "$WORK/last.out"
+check "no NaN in that table" sh -c "! grep -qi 'nan' '$WORK/last.out'"
