@@ -459,8 +459,11 @@ static int simulate(struct ctx *c)
 			fprintf(stderr, "tachist forecast: %s\n", err);
 			return -1;
 		}
-		if (r->adaptive)
+		if (r->adaptive) {   /* a stopping rule may have ended staircases early */
 			r->total_per_observer = r->r.trials_per_observer;
+			r->session_s = c->practice_s + estimate_block_seconds(c->per_trial_s,
+					(size_t)r->total_per_observer, c->in.rig.refresh_hz);
+		}
 	}
 	if (c->tty)
 		fprintf(stderr, "\r%60s\r", "");
