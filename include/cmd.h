@@ -26,6 +26,7 @@ struct cmd {
 extern const struct opts_row cmd_console_opts[], cmd_check_opts[], cmd_run_opts[],
 	cmd_timing_opts[], cmd_sessions_opts[], cmd_report_opts[], cmd_export_opts[], cmd_fit_opts[],
 	cmd_calc_opts[], cmd_calibrate_opts[], cmd_stimuli_opts[], cmd_pool_opts[];
+extern const struct opts_row cmd_forecast_opts[];
 
 int cmd_console(int argc, char **argv);
 int cmd_check(int argc, char **argv);
@@ -40,6 +41,7 @@ int cmd_stimuli(int argc, char **argv);
 int cmd_pool(int argc, char **argv);
 int cmd_demo(int argc, char **argv);
 int cmd_calibrate(int argc, char **argv);
+int cmd_forecast(int argc, char **argv);
 
 /* Shared by `run` and `demo` (app/cmd/cmd_run.c; both take the options of cmd_run_opts): parse
  * ARGV into O (*RIG_ARG gets --rig, *PROTOCOL the one argument that is not an option; PROTOCOL NULL

@@ -291,6 +291,9 @@ void console_live_push(struct console *c);
 void console_sessions_push(struct console *c);
 void console_results_push(struct console *c, const char *session_id);
 void console_export_push(struct console *c, const char *session_id);
+struct store_trial;
+/* The forecast from N stored TRIALS of an M-choice session taken as a pilot (app/console/forecastview.c). */
+void console_forecast_push(struct console *c, const struct store_trial *trials, size_t n, int m);
 /* The rig editor for the profile at PATH (may be NULL: start empty); SIZE_DEG is the protocol's
  * stimulus size for the worked-out pixels (0: unknown). SAVED gets the written file's path. */
 void console_rig_push(struct console *c, const char *path, double size_deg,

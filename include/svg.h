@@ -25,6 +25,18 @@ void svg_confusion(FILE *out, const struct analysis *a, size_t i, const char *ti
 void svg_histogram(FILE *out, const double *v, size_t n, int nbins, double mark, bool logy,
 		   const char *title, const char *xlabel, const char *ylabel);
 
+/* One line of svg_lines: N points (X, Y) with a range [LO, HI] at each (NaN: none drawn). */
+struct svg_line {
+	const char *label;
+	const double *x, *y, *lo, *hi;
+	size_t n;
+};
+/* N lines in the Okabe–Ito colours with a legend, each point's range as a bar (offset a little
+ * per line so bars at the same x stay apart); MARK, when finite, a dashed horizontal target line.
+ * `tachist forecast --plot` draws interval width against trials per level with it. */
+void svg_lines(FILE *out, const struct svg_line *lines, size_t n, double mark, const char *title,
+	       const char *xlabel, const char *ylabel);
+
 /* Writes every figure of A into DIR (created when missing) and DIR/index.html. Returns the number
  * of figures written, or -1 with *ERR. */
 int svg_report(const struct analysis *a, const char *dir, char **err);

@@ -71,6 +71,18 @@ static const struct cmd commands[] = {
 	 "(level,correct) or of counts per level (level,n,k: trials, correct). A fit the data cannot "
 	 "support is said in words and exits 1; no number is printed for it.",
 	 cmd_fit_opts, cmd_fit},
+	{"forecast", "simulate a study before running it: interval widths for a grid of designs",
+	 "tachist forecast PROTOCOL (--observer model:SPEC | --db FILE [--session ID | --subject ID | --all])\n"
+	 "                 [--rig FILE] [--levels A,B,...]... [--trials N,N,...] [--observers N,N,...]\n"
+	 "                 [--runs N] [--boot N] [--seed N] [--threads N] [--target-width W] [--log]\n"
+	 "                 [--json] [--plot FILE.svg]\n",
+	 "Simulates the study --runs times for every design of the grid (level sets, observers, "
+	 "trials per level, and the protocol's adaptive block at the same trial count) with a model "
+	 "observer, or with the function fitted to a pilot, and fits each run as report does. Prints "
+	 "the median and 5-95% range of the threshold interval's width, the bias, the share of "
+	 "failed fits and slope bounds, the intervals' coverage, the session length and whether the "
+	 "levels bracket the threshold; --target-width names the smallest design that reaches it.",
+	 cmd_forecast_opts, cmd_forecast},
 	{"calc", "visual angle, pixels, frames, d' and intervals at the bench",
 	 "tachist calc angle --size CM --distance CM [--json]\n"
 	 "tachist calc size --deg D --distance CM [--json]\n"

@@ -45,6 +45,7 @@ static const struct console_key results_keys[] = {
 	{"Left/Right", "series or level"},
 	{"Up/Down", "scroll"},
 	{"x", "export"},
+	{"f", "forecast"},
 };
 
 static const char *const view_names[VIEW_COUNT] = {"accuracy", "curve", "confusions", "timing"};
@@ -475,6 +476,11 @@ static bool results_key(struct console *c, void *st, int ch)
 	case 'X':
 		if (!r->error[0])
 			console_export_push(c, r->ss.id);
+		return true;
+	case 'f':
+	case 'F':
+		if (!r->error[0])
+			console_forecast_push(c, r->trials, r->ntrials, (int)r->nchoices);
 		return true;
 	default:
 		return false;

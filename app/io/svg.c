@@ -416,3 +416,69 @@ out:
 	free(figs);
 	return rc;
 }
+
+/* Okabe–Ito colours for several lines, in the order the lines come. */
+static const char *const line_colour[] = {"#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00",
+					  "#56B4E9", "#000000", "#F0E442"};
+
+void svg_lines(FILE *out, const struct svg_line *lines, size_t n, double mark, const char *title,
+	       const char *xlabel, const char *ylabel)
+{
+	begin(out, W, H, title);
+	double x0 = INFINITY, x1 = -INFINITY, y1 = 0;
+	for (size_t i = 0; i < n; i++)
+		for (size_t k = 0; k < lines[i].n; k++) {
+			if (!isfinite(lines[i].y[k]))
+				continue;
+			x0 = fmin(x0, lines[i].x[k]);
+			x1 = fmax(x1, lines[i].x[k]);
+			y1 = fmax(y1, isfinite(lines[i].hi[k]) ? lines[i].hi[k] : lines[i].y[k]);
+		}
+	if (!isfinite(x0))
+		x0 = 0, x1 = 1;
+	if (isfinite(mark))
+		y1 = fmax(y1, mark);
+	if (!(y1 > 0))
+		y1 = 1;
+	double pad = (x1 - x0) * 0.05;
+	struct frame f;
+	default_frame(&f, fmax(0, x0 - pad), x1 + pad, 0, y1 * 1.05);
+	axes(out, &f, xlabel, ylabel, true);
+	if (isfinite(mark)) {
+		fprintf(out, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"" C_GUIDE
+			"\" stroke-dasharray=\"6 4\"/>\n<text x=\"%.1f\" y=\"%.1f\" fill=\"#555555\" "
+			"text-anchor=\"end\">target %g</text>\n", f.px0, fy(&f, mark), f.px1,
+			fy(&f, mark), f.px1 - 4, fy(&f, mark) - 4, mark);
+	}
+	size_t nc = sizeof line_colour / sizeof *line_colour;
+	for (size_t i = 0; i < n; i++) {
+		const struct svg_line *l = &lines[i];
+		const char *col = line_colour[i % nc];
+		/* The 5–95% range of each point as a bar, the medians joined by a line. */
+		for (size_t k = 0; k < l->n; k++)
+			if (isfinite(l->lo[k]) && isfinite(l->hi[k]))
+				fprintf(out, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" "
+					"stroke=\"%s\" stroke-opacity=\"0.5\" stroke-width=\"2\"/>\n",
+					fx(&f, l->x[k]) + 3.0 * (double)i, fy(&f, l->lo[k]),
+					fx(&f, l->x[k]) + 3.0 * (double)i, fy(&f, l->hi[k]), col);
+		fprintf(out, "<polyline fill=\"none\" stroke=\"%s\" stroke-width=\"2\" points=\"", col);
+		for (size_t k = 0; k < l->n; k++)
+			if (isfinite(l->y[k]))
+				fprintf(out, "%.1f,%.1f ", fx(&f, l->x[k]) + 3.0 * (double)i,
+					fy(&f, l->y[k]));
+		fputs("\"/>\n", out);
+		for (size_t k = 0; k < l->n; k++)
+			if (isfinite(l->y[k]))
+				fprintf(out, "<circle cx=\"%.1f\" cy=\"%.1f\" r=\"3.5\" fill=\"%s\"/>\n",
+					fx(&f, l->x[k]) + 3.0 * (double)i, fy(&f, l->y[k]), col);
+		double ly = f.py1 + 14 + 18.0 * (double)i;
+		fprintf(out, "<line x1=\"%.1f\" y1=\"%.1f\" x2=\"%.1f\" y2=\"%.1f\" stroke=\"%s\" "
+			"stroke-width=\"2\"/><text x=\"%.1f\" y=\"%.1f\">", f.px1 - 200, ly, f.px1 - 176,
+			ly, col, f.px1 - 170, ly + 4);
+		put_text(out, l->label);
+		fputs("</text>\n", out);
+	}
+	fprintf(out, "<text x=\"%.1f\" y=\"%.1f\" font-size=\"11\" fill=\"#555555\">points: median "
+		"over the simulated studies; bars: 5%% to 95%%</text>\n</svg>\n", f.px0 + 8,
+		f.py1 - 6);
+}
