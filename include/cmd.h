@@ -38,6 +38,7 @@ int cmd_fit(int argc, char **argv);
 int cmd_calc(int argc, char **argv);
 int cmd_stimuli(int argc, char **argv);
 int cmd_pool(int argc, char **argv);
+extern const struct opts_row cmd_pool_opts[];
 int cmd_demo(int argc, char **argv);
 int cmd_calibrate(int argc, char **argv);
 

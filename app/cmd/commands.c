@@ -92,10 +92,11 @@ static const struct cmd commands[] = {
 	 "control images.",
 	 NULL, cmd_stimuli},
 	{"pool", "pool databases from several rigs into one",
-	 "tachist pool --into FILE DB...\n",
-	 "Copies every session of each DB into FILE, which is created when missing; a session "
-	 "already there is not copied twice.",
-	 NULL, cmd_pool},
+	 "tachist pool --into FILE DB...\n"
+	 "tachist pool --into postgresql://... [--schema NAME] [--follow [--interval SECONDS]] DB...\n",
+	 "Copies every session of each DB into FILE, which is created when missing, or into a "
+	 "PostgreSQL server (docs/pooling.md); a session already there is not copied twice.",
+	 cmd_pool_opts, cmd_pool},
 	{"calibrate", "measure the display's luminance with a photometer into the rig profile",
 	 "tachist calibrate [--rig FILE] [--from CSV] [--steps N] [--channels grey|rgb|all]\n"
 	 "                  [--patch-deg D] [--surround CODE] [--order shuffled|ascending] [--seed N]\n"
