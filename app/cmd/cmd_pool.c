@@ -98,8 +98,8 @@ static int push_all(struct store_pg *pg, const char **srcs, int nsrc, bool ended
 		if (verbose || st.sessions_added || st.sessions_updated)
 			print_pg_stats(srcs[i], &st);
 		if (rc) {
-			fprintf(stderr, "tachist pool: %s (%zu sessions not sent; they are sent again "
-				"next time)\n", err, st.sessions_failed ? st.sessions_failed : 1);
+			fprintf(stderr, "tachist pool: %s (the sessions not sent are sent next "
+				"time)\n", err);
 			free(err);
 			failed++;
 		}

@@ -28,6 +28,7 @@ struct store_pg {
 	char *shown;          /* the connection text with any password masked */
 	char *schema;
 	bool staging;         /* the temporary staging tables exist on this connection */
+	bool lost;            /* the connection failed: only closing it is left */
 };
 
 /* ---- names and messages ---- */
@@ -85,7 +86,9 @@ bool store_pg_schema_valid(const char *name)
 /* libpq's message without its trailing newline, or WHAT when there is none. */
 static char *pg_message(PGconn *c, const PGresult *r)
 {
-	const char *m = r ? PQresultErrorMessage(r) : NULL;
+	const char *m = r ? PQresultErrorField(r, PG_DIAG_MESSAGE_PRIMARY) : NULL;
+	if (!m || !*m)
+		m = r ? PQresultErrorMessage(r) : NULL;
 	if (!m || !*m)
 		m = c ? PQerrorMessage(c) : "";
 	char *v = xstrdup(*m ? m : "no message from the server");
@@ -101,7 +104,14 @@ static char *pg_message(PGconn *c, const PGresult *r)
 static int pg_fail(struct store_pg *pg, PGresult *r, char **err, const char *what)
 {
 	char *m = pg_message(pg->conn, r);
+	/* SQLSTATE classes 08 (connection exception) and 57P (the server shutting the session
+	 * down) mean the connection is gone even while libpq has not noticed yet. */
+	const char *state = r ? PQresultErrorField(r, PG_DIAG_SQLSTATE) : NULL;
+	if (state && (!strncmp(state, "08", 2) || !strncmp(state, "57P", 3)))
+		pg->lost = true;
 	if (PQstatus(pg->conn) != CONNECTION_OK)
+		pg->lost = true;
+	if (pg->lost)
 		store_set_err(err, "%s: the connection to the server was lost while %s (%s)",
 			      pg->shown, what, m);
 	else
@@ -377,7 +387,7 @@ void store_pg_close(struct store_pg *pg)
 
 bool store_pg_alive(const struct store_pg *pg)
 {
-	return pg && PQstatus(pg->conn) == CONNECTION_OK;
+	return pg && !pg->lost && PQstatus(pg->conn) == CONNECTION_OK;
 }
 
 /* ---- COPY data ---- */
@@ -639,7 +649,7 @@ static int push_one(struct store_pg *pg, struct store *src, const char *id, bool
 	if (!rc)
 		rc = pg_exec(pg, "COMMIT", err, "committing a session");
 	if (rc) {
-		if (PQstatus(pg->conn) == CONNECTION_OK)
+		if (store_pg_alive(pg))
 			PQclear(PQexec(pg->conn, "ROLLBACK"));
 		return -1;
 	}
