@@ -42,6 +42,8 @@ static void store_pg_testShownMasksPassword(void **state)
 		{"host=h password=secret dbname=d", "host=h password=*** dbname=d"},
 		{"host=h password=secret", "host=h password=***"},
 		{"host=h dbname=d", "host=h dbname=d"},
+		{"password=a host=h", "password=*** host=h"},
+		{"host=h password=", "host=h password=***"},
 	};
 	for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
 		char *v = store_pg_shown(cases[i].in);

@@ -86,9 +86,10 @@ static void print_pg_stats(const char *src, const struct store_pg_stats *st)
 }
 
 /* One pass over the sources; returns how many failed. Prints what changed (every source when
- * VERBOSE). */
+ * VERBOSE). LAST (NULL, or one slot a source) keeps the last error of each source so a problem
+ * that lasts is told once. */
 static int push_all(struct store_pg *pg, const char **srcs, int nsrc, bool ended_only,
-		    bool verbose)
+		    bool verbose, char **last)
 {
 	int failed = 0;
 	for (int i = 0; i < nsrc && store_pg_alive(pg); i++) {
@@ -98,10 +99,16 @@ static int push_all(struct store_pg *pg, const char **srcs, int nsrc, bool ended
 		if (verbose || st.sessions_added || st.sessions_updated)
 			print_pg_stats(srcs[i], &st);
 		if (rc) {
-			fprintf(stderr, "tachist pool: %s (the sessions not sent are sent next "
-				"time)\n", err);
-			free(err);
+			if (!last || !last[i] || !err || strcmp(last[i], err))
+				fprintf(stderr, "tachist pool: %s (the sessions not sent are sent "
+					"next time)\n", err ? err : "failed");
 			failed++;
+		}
+		if (last) {
+			free(last[i]);
+			last[i] = err;
+		} else {
+			free(err);
 		}
 	}
 	return failed;
@@ -116,7 +123,7 @@ static int pool_into_server(const char *into, const char *schema, const char **s
 		free(err);
 		return EXIT_PROBLEMS;
 	}
-	int failed = push_all(pg, srcs, nsrc, false, true);
+	int failed = push_all(pg, srcs, nsrc, false, true, NULL);
 	store_pg_close(pg);
 	return failed ? EXIT_PROBLEMS : EXIT_OK;
 }
@@ -134,6 +141,7 @@ static int follow(const char *into, const char *schema, const char **srcs, int n
 	struct store_pg *pg = NULL;
 	double wait = 1;
 	char *last = NULL;   /* the last connection error printed, so an outage is told once */
+	char **src_err = xcalloc((size_t)nsrc, sizeof *src_err);
 	while (!run_stop_requested()) {
 		if (!pg) {
 			char *err = NULL;
@@ -153,7 +161,7 @@ static int follow(const char *into, const char *schema, const char **srcs, int n
 			last = NULL;
 			wait = 1;
 		}
-		push_all(pg, srcs, nsrc, true, false);
+		push_all(pg, srcs, nsrc, true, false, src_err);
 		if (!store_pg_alive(pg)) {
 			store_pg_close(pg);
 			pg = NULL;
@@ -162,6 +170,9 @@ static int follow(const char *into, const char *schema, const char **srcs, int n
 		nap(interval);
 	}
 	free(last);
+	for (int i = 0; i < nsrc; i++)
+		free(src_err[i]);
+	free(src_err);
 	store_pg_close(pg);
 	fprintf(stderr, "tachist pool: stopped\n");
 	return EXIT_OK;

@@ -100,5 +100,23 @@ pg_sql "DROP TRIGGER drop_me ON tachist.events"
 expect_exit "the next pooling" 0 "$TACHIST" pool --into "$PGCONN" "$WORK/d.db"
 check "sends both sessions whole" grep -q "d.db: 2 sessions added, 0 updated, 16 trials added, 2 events added" "$WORK/last.out"
 
+# -- pool --follow: ended sessions only; an unreachable server is retried ----------------------
+"$FILL" "$WORK/f.db" 1 3 --subject RUNNING --running >/dev/null
+"$FILL" "$WORK/f.db" 1 3 --subject ENDED >/dev/null
+"$TACHIST" pool --into "$PGCONN" --schema followed --follow --interval 0.1 "$WORK/f.db" >"$WORK/f.out" 2>"$WORK/f.err" &
+fp=$!
+n=0
+while [ "$n" -lt 300 ] && [ "$(pg_sql "SELECT count(*) FROM followed.sessions" 2>/dev/null)" != 1 ]; do sleep 0.1; n=$((n + 1)); done
+sleep 0.5
+kill -TERM "$fp"; wait "$fp"
+expect_eq "pool --follow sends the ended session and leaves the running one" "ENDED" \
+  "$(pg_sql "SELECT string_agg(subject, ' ') FROM followed.sessions")"
+"$TACHIST" pool --into "host=$WORK/nowhere user=tachist dbname=postgres" --follow --interval 0.1 "$WORK/a.db" >"$WORK/f.out" 2>"$WORK/f.err" &
+fp=$!
+sleep 4
+kill -TERM "$fp"; wait "$fp"; frc=$?
+expect_eq "pool --follow with the server unreachable keeps trying and stops on SIGTERM with 0" 0 "$frc"
+expect_eq "telling the outage once, not at every retry" 1 "$(grep -c 'cannot connect to the PostgreSQL server' "$WORK/f.err")"
+
 # -- pool --follow killed at random moments while a rig writes -------------------------------
 follow_kill_check 3 6 40
