@@ -22,6 +22,7 @@ sq_count() { sqlite3 "$1" "SELECT (SELECT count(*) FROM sessions) || ' ' || (SEL
 # -- three rigs, one with a session that is resumed after the first pooling ------------------
 "$FILL" "$WORK/a.db" 2 10 --subject RIGA >/dev/null
 "$FILL" "$WORK/b.db" 1 6 --subject RIGB >/dev/null
+sqlite3 "$WORK/b.db" "UPDATE trials SET image = 'dir\\sub\\a.png' WHERE trial = 0"   # a backslash, escaped in COPY
 "$FILL" "$WORK/c.db" 1 4 --subject RIGC --running >"$WORK/c.id"
 C=$(cat "$WORK/c.id")
 sqlite3 "$WORK/c.db" "UPDATE sessions SET status = 'interrupted', owner_pid = NULL"
