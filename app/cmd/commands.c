@@ -106,9 +106,10 @@ static const struct cmd commands[] = {
 	 "control images.",
 	 cmd_stimuli_opts, cmd_stimuli},
 	{"pool", "pool databases from several rigs into one",
-	 "tachist pool --into FILE DB...\n",
-	 "Copies every session of each DB into FILE, which is created when missing; a session "
-	 "already there is not copied twice.",
+	 "tachist pool --into FILE DB...\n"
+	 "tachist pool --into postgresql://... [--schema NAME] [--follow [--interval SECONDS]] DB...\n",
+	 "Copies every session of each DB into FILE, which is created when missing, or into a "
+	 "PostgreSQL server (docs/pooling.md); a session already there is not copied twice.",
 	 cmd_pool_opts, cmd_pool},
 	{"calibrate", "measure the display's luminance with a photometer into the rig profile",
 	 "tachist calibrate [--rig FILE] [--from CSV] [--steps N] [--channels grey|rgb|all]\n"
@@ -309,7 +310,9 @@ void cmd_print_man(FILE *out)
 	      "(or\n.IR ~/.config/tachist/rig.ini ),\n"
 	      "falling back to the demo rig with a warning.\n"
 	      ".TP\n.B NO_COLOR\nThe console uses no colours when it is set.\n"
-	      ".TP\n.B TMPDIR\nWhere temporary copies are made (pool).\n"
+	      ".TP\n.B TMPDIR\nWhere temporary copies are made (pool, and readers of a server).\n"
+	      ".TP\n.B PGPASSWORD\nWith\n.BR PGHOST ,\n.B PGPASSFILE\nand libpq's other variables, "
+	      "how a PostgreSQL server given to pool --into or --db is reached.\n"
 	      ".SH FILES\n"
 	      ".TP\n.I tachist.db\nThe default database, in the current folder.\n"
 	      ".SH SEE ALSO\n"

@@ -27,6 +27,7 @@
 
 #include "diag.h"
 #include "store_int.h"
+#include "store_pg.h"
 
 /* Bytes of slack kept beside a database opened for writing: when the disk fills, deleting it
  * leaves room to mark the session ended (a status update needs a page or two in the WAL and
@@ -422,10 +423,35 @@ fail:
 	return -1;
 }
 
+/* A PostgreSQL server as a reader's database: its schema copied into a temporary file. */
+static int open_server_copy(const char *conninfo, struct store **out, char **err)
+{
+	char *tmp;
+	if (store_pg_fetch(conninfo, STORE_PG_DEFAULT_SCHEMA, &tmp, err))
+		return -1;
+	struct store *s;
+	if (store_open_raw(tmp, OPEN_READ, &s, err)) {
+		store_unlink_db(tmp);
+		free(tmp);
+		return -1;
+	}
+	s->reader = true;
+	s->tmp = tmp;
+	s->shown = store_pg_shown(conninfo);
+	if (store_exec(s, "PRAGMA query_only = 1", err, "setting up")) {
+		store_close(s);
+		return -1;
+	}
+	*out = s;
+	return 0;
+}
+
 int store_open_existing(const char *path, struct store **out, char **err)
 {
 	assert(path && out);
 	*out = NULL;
+	if (store_pg_is_conninfo(path))
+		return open_server_copy(path, out, err);
 	struct stat sb;
 	if (stat(path, &sb) != 0) {
 		store_set_err(err, "no database at %s", path);
