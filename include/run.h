@@ -63,6 +63,8 @@ struct run_options {
 	bool no_observer_screens;    /* keyboard: leave out the "press space" screens before blocks and
 				      * at rest breaks (the model observer never gets them) */
 	const char *screenshot_dir;  /* debug: save PNGs of the first trial's frames here */
+	bool accept_rig_mismatch;    /* run although the display does not match the rig (an event) */
+	double clock_hz;             /* headless: the virtual clock's rate (0 = the rig's) */
 };
 
 /* What the callback tells the session to do next. */

@@ -91,7 +91,7 @@ int cmd_run_session(const struct run_options *o, char id_out[37])
 }
 
 enum { O_SUBJECT, O_DB, O_RIG, O_OBSERVER, O_HEADLESS, O_PACE, O_INJECT_DROPS, O_SEED, O_RESUME,
-       O_WINDOW, O_SCREENSHOTS };
+       O_WINDOW, O_SCREENSHOTS, O_ACCEPT_RIG, O_CLOCK_HZ };
 const struct opts_row cmd_run_opts[] = {
 	[O_SUBJECT] = {"subject", "ID", "the subject's pseudonymous ID, letters and digits"},
 	[O_DB] = {"db", "FILE", "the database (run: tachist.db, demo: tachist-demo.db)"},
@@ -104,6 +104,8 @@ const struct opts_row cmd_run_opts[] = {
 	[O_RESUME] = {"resume", "SESSION", "continue this interrupted session at its first trial not stored"},
 	[O_WINDOW] = {"window", NULL, "a window instead of the full screen"},
 	[O_SCREENSHOTS] = {"screenshots", "DIR", "save PNGs of the first trial's frames into DIR"},
+	[O_ACCEPT_RIG] = {"accept-rig-mismatch", NULL, "run on a display the rig does not describe (recorded)"},
+	[O_CLOCK_HZ] = {"clock-hz", "HZ", "headless: the virtual clock's rate (default the rig's)"},
 	OPTS_END,
 };
 
@@ -125,6 +127,11 @@ int cmd_run_options(const char *cmd, int argc, char **argv, struct run_options *
 		case O_HEADLESS: o->headless = true; break;
 		case O_PACE: o->pace = true; break;
 		case O_WINDOW: o->window = true; break;
+		case O_ACCEPT_RIG: o->accept_rig_mismatch = true; break;
+		case O_CLOCK_HZ:
+			if (cmd_parse_double(v, &o->clock_hz) || !(o->clock_hz >= 1 && o->clock_hz <= 1000))
+				return opts_usage(cmd, "--clock-hz takes a rate from 1 to 1000 Hz (got '%s')", v);
+			break;
 		case O_SEED:
 			if (cmd_parse_u64(v, &x) || x > 4294967295ull)
 				return opts_usage(cmd, "--seed takes a whole number from 0 to 4294967295 "
@@ -147,8 +154,8 @@ int cmd_run_options(const char *cmd, int argc, char **argv, struct run_options *
 		default: return EXIT_USAGE;
 		}
 	}
-	if ((o->pace || o->inject_drops > 0) && !o->headless)
-		return opts_usage(cmd, "--pace and --inject-drops need --headless");
+	if ((o->pace || o->inject_drops > 0 || o->clock_hz > 0) && !o->headless)
+		return opts_usage(cmd, "--pace, --inject-drops and --clock-hz need --headless");
 	return 0;
 }
 

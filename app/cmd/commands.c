@@ -33,11 +33,13 @@ static const struct cmd commands[] = {
 	{"run", "run a session",
 	 "tachist run PROTOCOL --subject ID [--db FILE] [--rig FILE]\n"
 	 "            [--observer keyboard|model:SPEC] [--headless [--pace] [--inject-drops RATE]]\n"
-	 "            [--seed N] [--resume SESSION] [--window] [--screenshots DIR]\n",
+	 "            [--seed N] [--resume SESSION] [--window] [--screenshots DIR]\n"
+	 "            [--accept-rig-mismatch] [--clock-hz HZ]\n",
 	 "Runs every block of the protocol on the observer's display and stores each trial in the "
 	 "database before the next one starts. Without a display, --headless runs on a virtual clock "
 	 "and the session records simulated timing. A session that was interrupted continues with "
-	 "--resume at its first trial not stored.",
+	 "--resume at its first trial not stored. A display whose size or measured refresh (more than "
+	 "2%) differs from the rig's is refused unless --accept-rig-mismatch.",
 	 cmd_run_opts, cmd_run},
 	{"timing", "measure the display's refresh",
 	 "tachist timing [--rig FILE] [--frames N] [--headless]\n",

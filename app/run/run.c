@@ -137,9 +137,8 @@ static int load_inputs(struct run_session *s, const struct run_options *o, const
 }
 
 /* The observer's window: refused when there is no real display (unless headless) or when it is
- * smaller than the stimulus; a warning when its size differs from the rig's. */
-static int open_display(struct run_session *s, const struct run_options *o, struct diag_list *d,
-			char **err)
+ * smaller than the stimulus (a size other than the rig's is rig_match's). */
+static int open_display(struct run_session *s, const struct run_options *o, char **err)
 {
 	char e[512];
 	struct display_opts dopt = {
@@ -168,10 +167,6 @@ static int open_display(struct run_session *s, const struct run_options *o, stru
 				 h < sh ? h : sh);
 		return -1;
 	}
-	if (!o->headless && (sw != s->rig.width_px || sh != s->rig.height_px))
-		diag_add(d, DIAG_WARNING, s->rig.path, 0, "the display is %d×%d px but the rig says "
-			 "%d×%d px: sizes in degrees are only right when the rig matches the display",
-			 sw, sh, s->rig.width_px, s->rig.height_px);
 	return 0;
 }
 
@@ -181,7 +176,7 @@ static int open_clock(struct run_session *s, const struct run_options *o, struct
 {
 	if (o->headless) {
 		struct dclock_virtual_opts vo = {
-			.hz = s->rig.refresh_hz, .drop_rate = o->inject_drops, .drop_frames = 1,
+			.hz = o->clock_hz > 0 ? o->clock_hz : s->rig.refresh_hz, .drop_rate = o->inject_drops, .drop_frames = 1,
 			.jitter_ms = o->inject_jitter_ms, .seed = s->plan.seed ^ 0x5eedc10cull,
 			.pace = o->pace,
 		};
@@ -197,6 +192,53 @@ static int open_clock(struct run_session *s, const struct run_options *o, struct
 		s->clock = dclock_vsync_new(display_renderer(s->disp), s->rig.refresh_hz);
 	}
 	return 0;
+}
+
+/* The rig must describe the display it runs on: a screen of another size than the rig's pixels (a
+ * real display) or a refresh measured more than RIG_HZ_TOLERANCE percent from the rig's refuses the
+ * session before anything is stored, with both values and the fix. With accept_rig_mismatch the
+ * session runs and *NOTE (malloc'd, NULL when all matches) is recorded as its event. The 2% bound
+ * is the issue's choice (common practice, no source): a 60 Hz rig on a 59.94 Hz display passes, a
+ * 120 Hz rig on a 60 Hz display does not. Returns 0 or -1 with *ERR. */
+#define RIG_HZ_TOLERANCE 2.0
+static int rig_match(struct run_session *s, const struct run_options *o, char **note, char **err)
+{
+	*note = NULL;
+	char *size = NULL, *rate = NULL;
+	int sw, sh;
+	display_screen_size(s->disp, &sw, &sh);
+	if (!o->headless && (sw != s->rig.width_px || sh != s->rig.height_px))
+		size = xasprintf("the display is %d×%d px but the rig %s says %d×%d px", sw, sh,
+				 s->rig.path, s->rig.width_px, s->rig.height_px);
+	int64_t flips[MEASURE_FLIPS];
+	struct frames_measure m;
+	if (trialloop_measure(s->tl, flips, MEASURE_FLIPS) ||
+	    frames_measure(flips, MEASURE_FLIPS, s->rig.refresh_hz, &m)) {
+		free(size);
+		*err = xasprintf("the refresh measurement was interrupted");
+		return -1;
+	}
+	double off = (m.rate_hz - s->rig.refresh_hz) / s->rig.refresh_hz * 100.0;
+	if (fabs(off) > RIG_HZ_TOLERANCE)
+		rate = xasprintf("the display refreshes at %.3f Hz (measured) but the rig %s says "
+				 "%.3f Hz (%+.1f%%, more than %.0f%%)", m.rate_hz, s->rig.path,
+				 s->rig.refresh_hz, off, RIG_HZ_TOLERANCE);
+	if (!size && !rate)
+		return 0;
+	char *both = xasprintf("%s%s%s", size ? size : "", size && rate ? "; " : "", rate ? rate : "");
+	free(size);
+	free(rate);
+	if (o->accept_rig_mismatch) {
+		*note = both;
+		return 0;
+	}
+	*err = xasprintf("%s. Sizes in degrees and durations in frames are only right on the display "
+			 "the rig describes: set width_px, height_px and refresh_hz in [screen] of "
+			 "the rig to what the display does (`tachist timing` measures the refresh), "
+			 "or set the display to the rig's mode; --accept-rig-mismatch runs anyway "
+			 "and records that choice", both);
+	free(both);
+	return -1;
 }
 
 /* The responder: the keyboard (the protocol's keys) or the model observer O->observer names. */
@@ -253,7 +295,7 @@ static int make_mask(struct run_session *s, char **err)
 static int open_presenter(struct run_session *s, const struct run_options *o, struct diag_list *d,
 			  char **err)
 {
-	if (open_display(s, o, d, err) || open_clock(s, o, d, err) || open_responder(s, o, err))
+	if (open_display(s, o, err) || open_clock(s, o, d, err) || open_responder(s, o, err))
 		return -1;
 	s->paced = s->keyboard && !o->no_observer_screens;
 	if (make_mask(s, err))
@@ -483,11 +525,19 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 	s->skipped = xcalloc(s->plan.nblocks + 1, sizeof *s->skipped);
 	for (size_t b = 0; b < s->plan.nblocks; b++)
 		s->next_bt[b] = (int)s->plan.blocks[b].ntrials;
-	if (open_presenter(s, o, d, err))
+	char *mismatch = NULL;
+	if (open_presenter(s, o, d, err) || rig_match(s, o, &mismatch, err))
 		goto fail;
 	const char *mode = o->headless ? "simulated" : "vsync";
-	if (o->resume_id ? resume_begin(s, mode, d, err) : session_begin(s, o, mode, err))
+	if ((o->resume_id ? resume_begin(s, mode, d, err) : session_begin(s, o, mode, err)) ||
+	    (mismatch && store_event(s->store, s->ss.id, "rig_mismatch_accepted", mismatch, err))) {
+		free(mismatch);
 		goto fail;
+	}
+	if (mismatch)
+		diag_add(d, DIAG_WARNING, s->rig.path, 0, "running although %s (--accept-rig-mismatch, "
+			 "recorded as an event of the session)", mismatch);
+	free(mismatch);
 	if (!o->no_signal_handlers)
 		install_handlers(s);
 	run_stop_flag = 0;
