@@ -199,7 +199,8 @@ static int open_clock(struct run_session *s, const struct run_options *o, struct
  * session before anything is stored, with both values and the fix. With accept_rig_mismatch the
  * session runs and *NOTE (malloc'd, NULL when all matches) is recorded as its event. The 2% bound
  * is the issue's choice (common practice, no source): a 60 Hz rig on a 59.94 Hz display passes, a
- * 120 Hz rig on a 60 Hz display does not. Returns 0 or -1 with *ERR. */
+ * 120 Hz rig on a 60 Hz display does not. A virtual clock (headless) runs at the rate it was made
+ * with (--clock-hz), so its rate is read, not measured. Returns 0 or -1 with *ERR. */
 #define RIG_HZ_TOLERANCE 2.0
 static int rig_match(struct run_session *s, const struct run_options *o, char **note, char **err)
 {
@@ -210,18 +211,26 @@ static int rig_match(struct run_session *s, const struct run_options *o, char **
 	if (!o->headless && (sw != s->rig.width_px || sh != s->rig.height_px))
 		size = xasprintf("the display is %d×%d px but the rig %s says %d×%d px", sw, sh,
 				 s->rig.path, s->rig.width_px, s->rig.height_px);
-	int64_t flips[MEASURE_FLIPS];
-	struct frames_measure m;
-	if (trialloop_measure(s->tl, flips, MEASURE_FLIPS) ||
-	    frames_measure(flips, MEASURE_FLIPS, s->rig.refresh_hz, &m)) {
-		free(size);
-		*err = xasprintf("the refresh measurement was interrupted");
-		return -1;
+	double hz = 1e9 / (double)s->clock->period_ns;   /* a virtual clock's rate is its period's */
+	if (!s->clock->simulated) {
+		int64_t flips[MEASURE_FLIPS];
+		struct frames_measure m;
+		if (trialloop_measure(s->tl, flips, MEASURE_FLIPS) ||
+		    frames_measure(flips, MEASURE_FLIPS, s->rig.refresh_hz, &m)) {
+			free(size);
+			*err = xasprintf("the refresh measurement was interrupted");
+			return -1;
+		}
+		/* The first block takes this measurement instead of flipping another 120 frames. */
+		s->premeasured = m;
+		s->have_premeasured = true;
+		hz = m.rate_hz;
 	}
-	double off = (m.rate_hz - s->rig.refresh_hz) / s->rig.refresh_hz * 100.0;
+	double off = (hz - s->rig.refresh_hz) / s->rig.refresh_hz * 100.0;
 	if (fabs(off) > RIG_HZ_TOLERANCE)
-		rate = xasprintf("the display refreshes at %.3f Hz (measured) but the rig %s says "
-				 "%.3f Hz (%+.1f%%, more than %.0f%%)", m.rate_hz, s->rig.path,
+		rate = xasprintf("the display refreshes at %.3f Hz (%s) but the rig %s says "
+				 "%.3f Hz (%+.1f%%, more than %.0f%%)", hz,
+				 s->clock->simulated ? "virtual clock" : "measured", s->rig.path,
 				 s->rig.refresh_hz, off, RIG_HZ_TOLERANCE);
 	if (!size && !rate)
 		return 0;
@@ -561,12 +570,13 @@ fail:
 int run_measure_refresh(struct run_session *s, struct run_refresh *out, char **err)
 {
 	int64_t flips[MEASURE_FLIPS];
-	if (trialloop_measure(s->tl, flips, MEASURE_FLIPS)) {
+	struct frames_measure m = s->premeasured;
+	if (s->have_premeasured) {
+		s->have_premeasured = false;
+	} else if (trialloop_measure(s->tl, flips, MEASURE_FLIPS)) {
 		*err = xasprintf("the refresh measurement was interrupted");
 		return -1;
-	}
-	struct frames_measure m;
-	if (frames_measure(flips, MEASURE_FLIPS, s->rig.refresh_hz, &m)) {
+	} else if (frames_measure(flips, MEASURE_FLIPS, s->rig.refresh_hz, &m)) {
 		*err = xasprintf("too few flips to measure the refresh");
 		return -1;
 	}

@@ -15,6 +15,7 @@
 #include <stdint.h>
 
 #include "epoch.h"
+#include "frames.h"
 #include "plan.h"
 #include "protocol.h"
 #include "rig.h"
@@ -68,6 +69,8 @@ struct run_session {
 	uint64_t serial;         /* preload ids */
 	double refresh_hz;
 	struct run_refresh refresh;
+	struct frames_measure premeasured;   /* rig_match's, taken by the first refresh measurement */
+	bool have_premeasured;
 	bool failed, ended, interrupted;
 	bool live;               /* the session row is ours to end (run_open succeeded) */
 	const char *screenshot_dir;

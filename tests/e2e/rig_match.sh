@@ -11,7 +11,7 @@ run() { "$TACHIST" run "$WORK/p.ini" --subject s01 --rig "$RIG" --db "$WORK/t.db
 
 # 63 Hz against 60 Hz is +5%: refused, with both rates and the fix in the message.
 expect_exit "a refresh 5% off the rig's is refused" 1 run --clock-hz 63
-grep -q "63.000 Hz (measured) but the rig .* says 60.000 Hz" "$WORK/last.err" \
+grep -q "63.000 Hz (virtual clock) but the rig .* says 60.000 Hz" "$WORK/last.err" \
   && ok "the refusal gives both rates" || { notok "the refusal gives both rates"; sed 's/^/#   /' "$WORK/last.err"; }
 grep -q "refresh_hz in \[screen\]" "$WORK/last.err" && grep -q -- "--accept-rig-mismatch" "$WORK/last.err" \
   && ok "the refusal says how to fix the rig" || notok "the refusal says how to fix the rig"
