@@ -317,6 +317,8 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		.nchoices = (int)s->proto.nchoices, .mask = s->mask, .stop = &run_stop_flag,
 	};
 	memcpy(tc.epoch_frames, s->plan.epoch_frames, sizeof tc.epoch_frames);
+	if (run_screens_setup(s, &tc, d, err))
+		return -1;
 	if (tc.fixation_px < 0)
 		tc.fixation_px = 0;
 	if (s->screenshot_dir) {
@@ -666,6 +668,48 @@ int run_block_skip(struct run_session *s, size_t i, char **err)
 }
 
 
+/* The end screen's watcher: leaves on the experimenter's END or GO_ON. */
+struct end_watch {
+	run_progress_fn progress;
+	void *ctx;
+	struct run_session *s;
+};
+
+static int end_tick(void *ctx)
+{
+	struct end_watch *w = ctx;
+	if (!w->progress)
+		return 0;
+	struct run_snapshot sn;
+	memset(&sn, 0, sizeof sn);
+	sn.state = RUN_STATE_BREAK;
+	sn.block = -1;
+	sn.block_name = "end";
+	sn.session_total = w->s->plan.ntrials;
+	for (size_t k = 0; k < w->s->plan.ntrials; k++)
+		sn.session_done += w->s->stored[k];
+	sn.accuracy = sn.median_rt_ms = NAN;
+	sn.timing_mode = w->s->ss.timing_mode;
+	sn.session_id = w->s->ss.id;
+	enum run_cmd c = w->progress(&sn, w->ctx);
+	return c == RUN_CMD_END || c == RUN_CMD_GO_ON;
+}
+
+/* A keyboard observer's end screen: thanks, held until the experimenter closes it (the watcher,
+ * the chord Ctrl+Alt+E or G, or closing the window). Every trial is stored before it shows. */
+static void run_end_screen(struct run_session *s, run_progress_fn progress, void *ctx)
+{
+	if (!s->paced || s->failed)
+		return;
+	struct run_text t = {0};
+	run_screen_end(&t);
+	run_screen_shot(s, "end", &t);
+	static const char *const keys[] = {"ctrl+alt+e", "ctrl+alt+g"};
+	struct end_watch w = {progress, ctx, s};
+	trialloop_screen(s->tl, (const char *const *)t.v, t.n, keys, 2, false, end_tick, &w, 0);
+	run_text_free(&t);
+}
+
 enum run_block_result run_all(struct run_session *s, run_progress_fn progress, void *ctx,
 			      void (*on_block)(const struct run_block_summary *, void *),
 			      char **err)
@@ -684,6 +728,8 @@ enum run_block_result run_all(struct run_session *s, run_progress_fn progress, v
 		if (r != RUN_BLOCK_DONE)
 			break;
 	}
+	if (r == RUN_BLOCK_DONE || r == RUN_BLOCK_ENDED)
+		run_end_screen(s, progress, ctx);
 	return r;
 }
 
@@ -737,6 +783,10 @@ int run_close(struct run_session *s, char **err)
 	free(s->next_bt);
 	free(s->runs);
 	free(s->skipped);
+	run_text_free(&s->legend);
+	for (size_t i = 0; i < s->nshot_names; i++)
+		free(s->shot_names[i]);
+	free(s->shot_names);
 	free(s);
 	return rc;
 }
