@@ -462,8 +462,10 @@ static enum flow trial_after(struct blockrun *br, char **err)
 	enum trialloop_status is = trialloop_iti_finish(s->tl);
 	if (is == TRIALLOOP_STOP)
 		return FLOW_STOP;
-	if (is == TRIALLOOP_PAUSE)
-		return observer_pause(br, err);
+	if (is == TRIALLOOP_PAUSE) {
+		enum flow fl = observer_pause(br, err);
+		return fl == FLOW_ON && s->paced ? ready_screen(br, err) : fl;
+	}
 	return FLOW_ON;
 }
 
