@@ -29,6 +29,15 @@ enum protocol_scaling { SCALING_LINEAR, SCALING_NEAREST };
 /* The key legend in the response window: none, the categories, or the categories with their keys. */
 enum protocol_legend { LEGEND_OFF, LEGEND_LABELS, LEGEND_KEYS };
 
+/* [counterbalance]: how the subject's position in the design changes the protocol (counterbal.h). */
+enum counterbalance_blocks { COUNTERBALANCE_FIXED, COUNTERBALANCE_BALANCED };
+enum counterbalance_keys { COUNTERBALANCE_KEYS_FIXED, COUNTERBALANCE_ROTATE };
+struct protocol_counterbalance {
+	int block_order;               /* enum counterbalance_blocks */
+	int key_mapping;               /* enum counterbalance_keys */
+	int line;                      /* header line of [counterbalance], 0 = absent */
+};
+
 /* What the observer reads ([screens], app/io/protocol_screens.c). */
 struct protocol_screens {
 	char *font;                    /* font file, resolved; NULL = the system's sans-serif */
@@ -89,6 +98,7 @@ struct protocol {
 	enum protocol_scaling scaling;
 	int break_every;               /* trials between rest breaks inside a block; 0 = none */
 	struct protocol_screens screens;
+	struct protocol_counterbalance counterbalance;
 	struct protocol_block *blocks;
 	size_t nblocks;
 	void *adaptive;                /* adaptive sections, owned by the adaptive module; may be NULL */

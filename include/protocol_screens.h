@@ -12,6 +12,8 @@
 #include "protocol_file.h"
 
 extern const struct protocol_section protocol_screens_section;
+/* "[counterbalance]": block_order = fixed | balanced, key_mapping = fixed | rotate (counterbal.h). */
+extern const struct protocol_section protocol_counterbalance_section;
 
 /* Longest instructions file read, in bytes. */
 #define PROTOCOL_INSTRUCTIONS_MAX 16384

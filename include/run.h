@@ -67,6 +67,7 @@ struct run_options {
 	const char *screenshot_dir;  /* debug: save PNGs of the first trial's frames here */
 	bool accept_rig_mismatch;    /* run although the display does not match the rig (an event) */
 	double clock_hz;             /* headless: the virtual clock's rate (0 = the rig's) */
+	size_t counterbalance;       /* the subject's position in the design; 0 = from the database */
 };
 
 /* What the callback tells the session to do next. GO_ON and SKIP are the experimenter's answers to

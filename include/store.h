@@ -68,6 +68,8 @@ struct store_session {
 	int planned_trials;        /* trials in the plan; 0 = unknown (sessions before schema 4) */
 	int owner_pid;             /* process running it (store_session_begin and _own fill it) */
 	char *owner_host;
+	int design_position;       /* counterbalancing: the subject's position, 0 = none */
+	char *block_order, *key_mapping;   /* what the design gave (NULL without one) */
 };
 
 /* Opens or creates PATH and brings its schema up to date. Returns 0 and *OUT, or -1 and *ERR

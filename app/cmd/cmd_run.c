@@ -125,7 +125,7 @@ int cmd_run_session(const struct run_options *o, char id_out[37])
 }
 
 enum { O_SUBJECT, O_DB, O_RIG, O_OBSERVER, O_HEADLESS, O_PACE, O_INJECT_DROPS, O_SEED, O_RESUME,
-       O_WINDOW, O_SCREENSHOTS, O_ACCEPT_RIG, O_CLOCK_HZ };
+       O_WINDOW, O_SCREENSHOTS, O_ACCEPT_RIG, O_CLOCK_HZ, O_COUNTERBALANCE };
 const struct opts_row cmd_run_opts[] = {
 	[O_SUBJECT] = {"subject", "ID", "the subject's pseudonymous ID, letters and digits"},
 	[O_DB] = {"db", "FILE", "the database (run: tachist.db, demo: tachist-demo.db)"},
@@ -140,6 +140,7 @@ const struct opts_row cmd_run_opts[] = {
 	[O_SCREENSHOTS] = {"screenshots", "DIR", "save PNGs of the first trial's frames into DIR"},
 	[O_ACCEPT_RIG] = {"accept-rig-mismatch", NULL, "run on a display the rig does not describe (recorded)"},
 	[O_CLOCK_HZ] = {"clock-hz", "HZ", "headless: the virtual clock's rate (default the rig's)"},
+	[O_COUNTERBALANCE] = {"counterbalance", "N", "the subject's position in the protocol's design (default: sessions begun + 1)"},
 	OPTS_END,
 };
 
@@ -162,6 +163,12 @@ int cmd_run_options(const char *cmd, int argc, char **argv, struct run_options *
 		case O_PACE: o->pace = true; break;
 		case O_WINDOW: o->window = true; break;
 		case O_ACCEPT_RIG: o->accept_rig_mismatch = true; break;
+		case O_COUNTERBALANCE:
+			if (cmd_parse_u64(v, &x) || x < 1 || x > 100000)
+				return opts_usage(cmd, "--counterbalance takes a position from 1 to 100000 "
+						  "(got '%s')", v);
+			o->counterbalance = (size_t)x;
+			break;
 		case O_CLOCK_HZ:
 			if (cmd_parse_double(v, &o->clock_hz) || !(o->clock_hz >= 1 && o->clock_hz <= 1000))
 				return opts_usage(cmd, "--clock-hz takes a rate from 1 to 1000 Hz (got '%s')", v);

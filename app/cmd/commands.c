@@ -25,7 +25,7 @@ static const struct cmd commands[] = {
 	 "a terminal of at least 80x24.",
 	 cmd_console_opts, cmd_console},
 	{"check", "validate a protocol, its rig and stimuli, and print the plan",
-	 "tachist check PROTOCOL [--rig FILE] [--json]\n",
+	 "tachist check PROTOCOL [--rig FILE] [--json] [--subjects N]\n",
 	 "Reads the protocol, the rig profile and the stimulus list, reports every problem as "
 	 "FILE:LINE: message, and prints the durations in whole frames and the blocks of the plan. "
 	 "Exits 0 when the protocol can run (warnings allowed), 1 when any error was found.",
@@ -34,7 +34,7 @@ static const struct cmd commands[] = {
 	 "tachist run PROTOCOL --subject ID [--db FILE] [--rig FILE]\n"
 	 "            [--observer keyboard|model:SPEC] [--headless [--pace] [--inject-drops RATE]]\n"
 	 "            [--seed N] [--resume SESSION] [--window] [--screenshots DIR]\n"
-	 "            [--accept-rig-mismatch] [--clock-hz HZ]\n",
+	 "            [--accept-rig-mismatch] [--clock-hz HZ] [--counterbalance N]\n",
 	 "Runs every block of the protocol on the observer's display and stores each trial in the "
 	 "database before the next one starts. Without a display, --headless runs on a virtual clock "
 	 "and the session records simulated timing. A session that was interrupted continues with "

@@ -545,6 +545,7 @@ static const struct protocol_section *const sections[] = {
 	&block_section,
 	&protocol_adaptive_section,   /* "[adaptive NAME]", app/io/protocol_adaptive.c */
 	&protocol_screens_section,    /* "[screens]", app/io/protocol_screens.c */
+	&protocol_counterbalance_section,   /* "[counterbalance]", app/io/protocol_screens.c */
 };
 #define NSECTIONS (sizeof sections / sizeof sections[0])
 

@@ -124,3 +124,40 @@ const struct protocol_section protocol_screens_section = {
 	"screens", 0, screens_keys, sizeof screens_keys / sizeof screens_keys[0], NULL, screens_base,
 	NULL, NULL, screens_finish, NULL, screens_clear,
 };
+
+/* --- [counterbalance] ---------------------------------------------------------------------- */
+
+static const char *const order_words[] = {"fixed", "balanced", NULL};
+static const char *const mapping_words[] = {"fixed", "rotate", NULL};
+
+static const struct protocol_key counterbalance_keys[] = {
+	{"block_order", PTYPE_WORD, offsetof(struct protocol_counterbalance, block_order), 0, 0, 0,
+	 order_words, 0, NULL, offsetof(struct protocol_counterbalance, line)},
+	{"key_mapping", PTYPE_WORD, offsetof(struct protocol_counterbalance, key_mapping), 0, 0, 0,
+	 mapping_words, 0, NULL, 0},
+};
+
+static void *counterbalance_base(struct protocol_ctx *c)
+{
+	return &protocol_ctx_protocol(c)->counterbalance;
+}
+
+static void counterbalance_finish(struct protocol_ctx *c)
+{
+	struct protocol *p = protocol_ctx_protocol(c);
+	if (p->counterbalance.block_order != COUNTERBALANCE_BALANCED)
+		return;
+	size_t nmain = 0;
+	for (size_t i = 0; i < p->nblocks; i++)
+		nmain += !p->blocks[i].practice;
+	if (nmain < 2)
+		protocol_ctx_warning(c, p->counterbalance.line, "block_order = balanced has %zu main "
+				     "block%s to order; every subject gets the same order", nmain,
+				     nmain == 1 ? "" : "s");
+}
+
+const struct protocol_section protocol_counterbalance_section = {
+	"counterbalance", 0, counterbalance_keys,
+	sizeof counterbalance_keys / sizeof counterbalance_keys[0], NULL, counterbalance_base, NULL,
+	NULL, counterbalance_finish, NULL, NULL,
+};

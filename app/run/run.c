@@ -115,10 +115,10 @@ static void shot_hook(void *ctx, enum epoch e, int frame, bool stim)
 /* Loads protocol, rig, list and images and builds the plan through the one loader `check` uses,
  * so a session refuses to begin on anything check would refuse, with its messages in D. */
 static int load_inputs(struct run_session *s, const struct run_options *o, const char *rig_text,
-		       uint64_t seed, struct diag_list *d, char **err)
+		       uint64_t seed, size_t position, struct diag_list *d, char **err)
 {
 	struct inputs_options io = {.protocol_path = o->protocol_path, .rig_path = o->rig_path,
-				    .rig_text = rig_text, .seed = seed};
+				    .rig_text = rig_text, .seed = seed, .design_position = position};
 	struct inputs in;
 	if (inputs_load(&io, &in, d)) {
 		inputs_clear(&in);
@@ -131,6 +131,11 @@ static int load_inputs(struct run_session *s, const struct run_options *o, const
 	s->rig = in.rig;
 	s->list = in.list;
 	s->plan = in.plan;
+	s->ss.design_position = (int)position;
+	free(s->ss.block_order);
+	free(s->ss.key_mapping);
+	s->ss.block_order = in.block_order;
+	s->ss.key_mapping = in.key_mapping;
 	s->have_proto = s->have_rig = s->have_list = s->have_plan = true;
 	s->linearize = s->proto.linearize && rig_lum_tables(&s->rig, s->lin);
 	return 0;
@@ -432,7 +437,7 @@ static int resume_load(struct run_session *s, const struct run_options *o, struc
 				 "another host); resume it once that run has ended", s->ss.id);
 		return -1;
 	}
-	if (load_inputs(s, o, s->ss.rig_text, s->ss.seed, d, err))
+	if (load_inputs(s, o, s->ss.rig_text, s->ss.seed, (size_t)s->ss.design_position, d, err))
 		return -1;
 	char hex[65];
 	sha256_hex(s->proto.text, strlen(s->proto.text), hex);
@@ -471,6 +476,46 @@ static int resume_begin(struct run_session *s, const char *mode, struct diag_lis
 	if (rc)
 		return -1;
 	s->ss.status = STORE_RUNNING;
+	return 0;
+}
+
+/* The subject's position in the protocol's counterbalancing design for a new session: 0 when the
+ * protocol has no [counterbalance]; else --counterbalance N, or one more than the sessions of this
+ * protocol (by name) already begun in the database, whatever their status. Returns 0 or -1. */
+static int design_position(struct run_session *s, const struct run_options *o, struct diag_list *d,
+			   size_t *pos, char **err)
+{
+	*pos = 0;
+	struct protocol p;
+	struct diag_list ignored;
+	diag_init(&ignored);
+	bool cb = protocol_load(o->protocol_path, &p, &ignored) == 0 &&
+		  (p.counterbalance.block_order || p.counterbalance.key_mapping);
+	char *name = cb ? xstrdup(p.name) : NULL;
+	protocol_clear(&p);
+	diag_clear(&ignored);
+	if (!cb) {
+		if (o->counterbalance)
+			diag_add(d, DIAG_WARNING, o->protocol_path, 0, "--counterbalance %zu is ignored: "
+				 "the protocol has no [counterbalance] section", o->counterbalance);
+		return 0;   /* load_inputs reports the protocol's errors */
+	}
+	if (o->counterbalance) {
+		*pos = o->counterbalance;
+		free(name);
+		return 0;
+	}
+	struct store_session *v = NULL;
+	size_t n = 0, k = 0;
+	if (store_sessions_list(s->store, NULL, &v, &n, err)) {
+		free(name);
+		return -1;
+	}
+	for (size_t i = 0; i < n; i++)
+		k += v[i].protocol_name && !strcmp(v[i].protocol_name, name);
+	store_sessions_free(v, n);
+	free(name);
+	*pos = k + 1;
 	return 0;
 }
 
@@ -527,7 +572,9 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 			*err = xasprintf("no rig profile");
 			goto fail;
 		}
-		if (load_inputs(s, o, NULL, seed, d, err))
+		size_t position = 0;
+		if (design_position(s, o, d, &position, err) ||
+		    load_inputs(s, o, NULL, seed, position, d, err))
 			goto fail;
 	}
 	s->stored = xcalloc(s->plan.ntrials + 1, sizeof *s->stored);
