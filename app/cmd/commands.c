@@ -113,7 +113,8 @@ static const struct cmd commands[] = {
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
 	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n"
 	 "             [--subject ID] [--seed N] [--resume SESSION] [--window] [--inject-drops RATE]\n"
-	 "             [--screenshots DIR]\n",
+	 "             [--screenshots DIR] [--accept-rig-mismatch] [--clock-hz HZ]\n"
+	 "             [--counterbalance N]\n",
 	 "Runs protocols/demo.ini from the source folder on the demo stimuli and prints a short "
 	 "report. With a display the observer answers with the keyboard; without one a model "
 	 "observer answers on a virtual clock. It accepts the options of run as well.",
