@@ -10,6 +10,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #define TEXT_DEG_DEFAULT 0.5
 
@@ -60,6 +61,12 @@ static bool utf8_ok(const unsigned char *s, size_t n)
 /* Reads the instructions file PATH (named on LINE) into a malloc'd string; NULL after reporting. */
 static char *read_text(struct protocol_ctx *c, const char *path, int line)
 {
+	struct stat sb;
+	if (stat(path, &sb) == 0 && !S_ISREG(sb.st_mode)) {
+		/* A FIFO or a device would block or never end. */
+		protocol_ctx_error(c, line, "instructions file %s is not a regular file", path);
+		return NULL;
+	}
 	FILE *f = fopen(path, "rb");
 	if (!f) {
 		protocol_ctx_error(c, line, "cannot read the instructions file %s (%s)", path,
@@ -91,7 +98,10 @@ static void screens_finish(struct protocol_ctx *c)
 	struct protocol_screens *s = &p->screens;
 	if (!s->text_line)
 		s->text_deg = TEXT_DEG_DEFAULT;
-	if (s->font) {
+	struct stat sb;
+	if (s->font && stat(s->font, &sb) == 0 && !S_ISREG(sb.st_mode)) {
+		protocol_ctx_error(c, s->font_line, "font file %s is not a regular file", s->font);
+	} else if (s->font) {
 		FILE *f = fopen(s->font, "rb");
 		if (!f)
 			protocol_ctx_error(c, s->font_line, "cannot read the font file %s (%s)", s->font,
