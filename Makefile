@@ -15,7 +15,7 @@ pkg_flags   = $(if $(shell command -v pkg-config),,$(error pkg-config is not ins
               $(if $(strip $(pkg_missing)),$(error pkg-config cannot find: $(strip $(pkg_missing)); run `make deps`))$\
               $(shell pkg-config $(1) $(PKGS))
 PKG_CFLAGS  = $(eval PKG_CFLAGS := $(call pkg_flags,--cflags))$(PKG_CFLAGS)
-PKG_LIBS    = $(eval PKG_LIBS := $(call pkg_flags,--libs) -lSDL2_test -lcsv -lm)$(PKG_LIBS)
+PKG_LIBS    = $(eval PKG_LIBS := $(call pkg_flags,--libs) -lcsv -lm)$(PKG_LIBS)
 CPPFLAGS += -Iinclude -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE
 Q        ?= @
 ALL_CFLAGS = $(WARN) $(CPPFLAGS) $(PKG_CFLAGS) $(CFLAGS) -MMD -MP

@@ -65,14 +65,26 @@ void display_draw_fixation(struct display *d, int size_px);
 void display_draw_feedback(struct display *d, bool correct, int size_px);
 /* Photodiode patch: CORNER as enum rig_corner (0 none), SIDE px, white or black. */
 void display_draw_marker(struct display *d, int corner, int side, bool white);
-/* Lines of text centred on the screen (8×8 glyphs scaled by SCALE). */
-void display_draw_text(struct display *d, const char *const *lines, size_t n, int scale);
+/* The font of text on this display (text.h): FONT_FILE (NULL: the system's sans-serif) with
+ * capitals CAP_PX high. Until it is called, text uses the system's sans-serif with capitals 1/60 of
+ * the output's height. Returns 0, or -1 with ERR (the text in use is kept). */
+int display_set_text(struct display *d, const char *font_file, int cap_px, char *err, size_t errlen);
+/* Distance between baselines, and the width of LINE, in pixels (0 without a font). */
+int display_text_line_px(struct display *d);
+int display_text_width(struct display *d, const char *line);
+/* UTF-8 lines, each centred on CX, the first line box's top at Y; RECT (may be NULL) gets the box
+ * of the ink drawn. Returns 0, or -1 when a line could not be drawn. */
+int display_draw_lines(struct display *d, const char *const *lines, size_t n, int cx, int y,
+		       int rect[4]);
+/* UTF-8 lines centred on the screen. Returns 0 or -1 as display_draw_lines. */
+int display_draw_text(struct display *d, const char *const *lines, size_t n);
 
 /* Reads the current (not yet presented) back buffer as RGBA8 into a malloc'd buffer of w·h·4
  * bytes. Returns NULL on failure. */
 uint8_t *display_read_pixels(struct display *d, int *w, int *h);
 
-/* Events outside the responder: returns 1 and fills KEY (lower-case SDL key name) and T_MS when a
+/* Events outside the responder: returns 1 and fills KEY (lower-case SDL key name, prefixed with
+ * "ctrl+alt+" when both are held: the experimenter's chords) and T_MS when a
  * key went down, 2 when the window was asked to close, 0 when the queue is empty. */
 int display_poll_key(struct display *d, char *key, size_t keylen, uint32_t *t_ms);
 

@@ -27,6 +27,8 @@ struct inputs_options {
 	const char *missing_rig;   /* error to report when there is neither rig_path nor rig_text;
 				    * NULL: say nothing (the caller has no rig yet) */
 	uint64_t seed;             /* for the plan */
+	size_t design_position;    /* the subject's position in the protocol's counterbalancing design
+				    * (1, 2, ...); 0 = the protocol's own order and keys */
 };
 
 /* What was loaded. The have_* flags say which parts are usable; the structs are valid (and
@@ -37,6 +39,7 @@ struct inputs {
 	struct stimlist list;
 	struct plan plan;
 	bool have_proto, have_rig, have_list, have_plan;
+	char *block_order, *key_mapping;   /* with a design position: what it chose (counterbal.h) */
 };
 
 /* Loads and checks everything O names into IN (which the caller releases with inputs_clear, also

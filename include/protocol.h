@@ -26,6 +26,28 @@ enum protocol_order { ORDER_RANDOM, ORDER_FIXED };
 enum protocol_feedback { FEEDBACK_NONE, FEEDBACK_MARK };   /* MARK: a tick or a cross at fixation */
 enum protocol_mask { MASK_NONE, MASK_NOISE, MASK_IMAGE };
 enum protocol_scaling { SCALING_LINEAR, SCALING_NEAREST };
+/* The key legend in the response window: none, the categories, or the categories with their keys. */
+enum protocol_legend { LEGEND_OFF, LEGEND_LABELS, LEGEND_KEYS };
+
+/* [counterbalance]: how the subject's position in the design changes the protocol (counterbal.h). */
+enum counterbalance_blocks { COUNTERBALANCE_FIXED, COUNTERBALANCE_BALANCED };
+enum counterbalance_keys { COUNTERBALANCE_KEYS_FIXED, COUNTERBALANCE_ROTATE };
+struct protocol_counterbalance {
+	int block_order;               /* enum counterbalance_blocks */
+	int key_mapping;               /* enum counterbalance_keys */
+	int line;                      /* header line of [counterbalance], 0 = absent */
+};
+
+/* What the observer reads ([screens], app/io/protocol_screens.c). */
+struct protocol_screens {
+	char *font;                    /* font file, resolved; NULL = the system's sans-serif */
+	double text_deg;               /* height of a capital letter in degrees of visual angle */
+	char *instructions;            /* the session's instructions file, resolved; NULL = none */
+	char *instructions_text;       /* its text (UTF-8), read with the protocol */
+	enum protocol_legend legend;
+	bool break_accuracy;           /* break screens of main blocks show the accuracy so far */
+	int font_line, instructions_line, text_line;
+};
 
 /* One filter clause: the list column COLUMN must equal one of VALUES (text match). For the
  * `level` column the comparison is numeric. */
@@ -49,6 +71,9 @@ struct protocol_block {
 	char *adaptive;                /* name of an adaptive section, NULL for fixed levels */
 	int select_line;               /* line of `select`, 0 when absent (then every row) */
 	int adaptive_line;
+	char *instructions;            /* the block's instructions file, resolved; NULL = none */
+	char *instructions_text;       /* its text (UTF-8), read with the protocol */
+	int instructions_line;
 };
 
 struct protocol {
@@ -72,6 +97,8 @@ struct protocol {
 	enum protocol_feedback feedback;
 	enum protocol_scaling scaling;
 	int break_every;               /* trials between rest breaks inside a block; 0 = none */
+	struct protocol_screens screens;
+	struct protocol_counterbalance counterbalance;
 	struct protocol_block *blocks;
 	size_t nblocks;
 	void *adaptive;                /* adaptive sections, owned by the adaptive module; may be NULL */

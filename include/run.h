@@ -21,9 +21,11 @@
  * blocking; a few ms is fine, the ITI absorbs it): the presenter never waits for the console. What
  * it returns is obeyed at once: RUN_CMD_PAUSE shows the pause screen to the observer and keeps
  * calling back (snapshot.state = RUN_STATE_PAUSED) until it returns RUN_CMD_CONTINUE or RUN_CMD_END.
- * On a break screen (RUN_STATE_BREAK, a keyboard observer's "press space" screen) and in the
- * observer's own pause menu (paused_by_observer) only RUN_CMD_END has an effect: the observer goes
- * on with Space or the menu.
+ * On a break screen (RUN_STATE_BREAK, a keyboard observer's "press space" screen) only RUN_CMD_END
+ * has an effect: the observer goes on with Space. The observer's own pause (Escape;
+ * paused_by_observer) is left only by the experimenter: RUN_CMD_GO_ON, RUN_CMD_SKIP (the rest of
+ * the block) or RUN_CMD_END, or PAUSE followed by CONTINUE (the console's pause key pressed twice),
+ * or a chord on the observer's keyboard (Ctrl+Alt+G, S or E), which no screen shows.
  *
  * Signals: run_open installs SIGINT/SIGTERM/SIGHUP handlers (unless opt.no_signal_handlers) that
  * only set a flag; the current trial is then finished or discarded, the session marked
@@ -63,10 +65,14 @@ struct run_options {
 	bool no_observer_screens;    /* keyboard: leave out the "press space" screens before blocks and
 				      * at rest breaks (the model observer never gets them) */
 	const char *screenshot_dir;  /* debug: save PNGs of the first trial's frames here */
+	bool accept_rig_mismatch;    /* run although the display does not match the rig (an event) */
+	double clock_hz;             /* headless: the virtual clock's rate (0 = the rig's) */
+	size_t counterbalance;       /* the subject's position in the design; 0 = from the database */
 };
 
-/* What the callback tells the session to do next. */
-enum run_cmd { RUN_CMD_CONTINUE, RUN_CMD_PAUSE, RUN_CMD_END };
+/* What the callback tells the session to do next. GO_ON and SKIP are the experimenter's answers to
+ * the observer's pause (go on, skip the rest of the block); elsewhere they mean CONTINUE. */
+enum run_cmd { RUN_CMD_CONTINUE, RUN_CMD_PAUSE, RUN_CMD_END, RUN_CMD_GO_ON, RUN_CMD_SKIP };
 
 enum run_state {
 	RUN_STATE_ITI,        /* between trials (just stored one) */
@@ -94,9 +100,8 @@ struct run_trial_brief {
  * session_*). Valid only during the call. */
 struct run_snapshot {
 	enum run_state state;
-	bool paused_by_observer;      /* PAUSED: the observer pressed Escape and chooses from the pause
-				       * menu; returning RUN_CMD_END still ends the session, CONTINUE
-				       * leaves the choice to the observer */
+	bool paused_by_observer;      /* PAUSED: the observer pressed Escape and waits for the
+				       * experimenter (GO_ON, SKIP or END; see above) */
 	int block;                    /* plan block index */
 	const char *block_name;
 	bool practice;

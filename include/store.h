@@ -75,6 +75,8 @@ struct store_session {
 	bool has_background_cd;
 	double background_cd;      /* the background's light through the calibration, cd/m² */
 	bool linearized;           /* images went through the inverse of the display's curve */
+	int design_position;       /* counterbalancing: the subject's position, 0 = none */
+	char *block_order, *key_mapping;   /* what the design gave (NULL without one) */
 };
 
 /* Opens or creates PATH and brings its schema up to date. Returns 0 and *OUT, or -1 and *ERR

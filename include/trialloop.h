@@ -50,6 +50,11 @@ struct trialloop_config {
 	int nchoices;
 	struct SDL_Texture *mask;        /* drawn in the mask epoch; NULL = background */
 	volatile sig_atomic_t *stop;     /* set asynchronously to abandon the trial; may be NULL */
+	/* The key legend, drawn in the response epoch only (never with the stimulus or the mask),
+	 * lines centred with the first line's top at LEGEND_Y px. NLEGEND 0 = none. */
+	const char *const *legend;
+	size_t nlegend;
+	int legend_y;
 	/* Debug and tests: called after a frame is drawn and before its flip. May be NULL. */
 	void (*on_frame)(void *ctx, enum epoch e, int frame, bool stimulus_frame);
 	void *frame_ctx;

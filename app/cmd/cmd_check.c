@@ -14,6 +14,7 @@
 
 #include "adapt.h"
 #include "cmd.h"
+#include "counterbal.h"
 #include "estimate.h"
 #include "geom.h"
 #include "inputs.h"
@@ -234,10 +235,86 @@ static cJSON *json_doc(const struct protocol *p, const struct rig *r, const stru
 	return j;
 }
 
-enum { O_RIG, O_JSON };
+/* The counterbalancing design: its settings, and with SUBJECTS > 0 the block order and key
+ * mapping of subjects 1..SUBJECTS (the same functions run uses, counterbal.h). Text on stdout, or
+ * a "design" member of J. */
+static void print_design(const struct protocol *p, size_t subjects, cJSON *j)
+{
+	const struct protocol_counterbalance *cb = &p->counterbalance;
+	bool on = cb->block_order || cb->key_mapping;
+	size_t main_ix[256], nmain = 0;
+	for (size_t i = 0; i < p->nblocks && nmain < 256; i++)
+		if (!p->blocks[i].practice)
+			main_ix[nmain++] = i;
+	size_t rows = cb->block_order ? counterbal_rows(nmain) : 1;
+	size_t maps = cb->key_mapping ? p->nchoices : 1;
+	cJSON *dj = NULL, *arr = NULL;
+	if (j) {
+		dj = cJSON_AddObjectToObject(j, "design");
+		cJSON_AddStringToObject(dj, "block_order", cb->block_order ? "balanced" : "fixed");
+		cJSON_AddStringToObject(dj, "key_mapping", cb->key_mapping ? "rotate" : "fixed");
+		cJSON_AddNumberToObject(dj, "block_orders", (double)rows);
+		cJSON_AddNumberToObject(dj, "key_mappings", (double)maps);
+		arr = cJSON_AddArrayToObject(dj, "subjects");
+	} else if (on || subjects) {
+		printf("\ncounterbalancing: block order %s (%zu order%s of %zu main blocks), keys %s "
+		       "(%zu mapping%s)\n", cb->block_order ? "balanced (Williams)" : "fixed", rows,
+		       rows == 1 ? "" : "s", nmain, cb->key_mapping ? "rotated" : "fixed", maps,
+		       maps == 1 ? "" : "s");
+		if (subjects)
+			printf("  subject  blocks; keys\n");
+	}
+	for (size_t sbj = 1; sbj <= subjects; sbj++) {
+		size_t perm[256], rot[PROTOCOL_MAX_CHOICES];
+		counterbal_williams(nmain, on && cb->block_order ? sbj : 1, perm);
+		if (!cb->block_order)
+			for (size_t k = 0; k < nmain; k++)
+				perm[k] = k;
+		counterbal_rotation(p->nchoices, cb->key_mapping ? sbj : 1, rot);
+		cJSON *o = NULL, *bo = NULL, *km = NULL;
+		if (arr) {
+			o = cJSON_CreateObject();
+			cJSON_AddNumberToObject(o, "subject", (double)sbj);
+			bo = cJSON_AddArrayToObject(o, "block_order");
+			km = cJSON_AddObjectToObject(o, "key_mapping");
+			cJSON_AddItemToArray(arr, o);
+		} else {
+			printf("  %7zu  ", sbj);
+		}
+		bool first = true;
+		for (size_t i = 0; i < p->nblocks; i++)
+			if (p->blocks[i].practice) {
+				if (bo)
+					cJSON_AddItemToArray(bo, cJSON_CreateString(p->blocks[i].name));
+				else
+					printf("%s%s", first ? "" : ",", p->blocks[i].name);
+				first = false;
+			}
+		for (size_t k = 0; k < nmain; k++) {
+			const char *name = p->blocks[main_ix[perm[k]]].name;
+			if (bo)
+				cJSON_AddItemToArray(bo, cJSON_CreateString(name));
+			else
+				printf("%s%s", first ? "" : ",", name);
+			first = false;
+		}
+		for (size_t i = 0; i < p->nchoices; i++) {
+			const char *key = p->choices[rot[i]].key;
+			if (km)
+				cJSON_AddStringToObject(km, p->choices[i].category, key);
+			else
+				printf("%s%s=%s", i ? "," : "; ", p->choices[i].category, key);
+		}
+		if (!arr)
+			printf("\n");
+	}
+}
+
+enum { O_RIG, O_JSON, O_SUBJECTS };
 const struct opts_row cmd_check_opts[] = {
 	[O_RIG] = {"rig", "FILE", "the rig profile (default $XDG_CONFIG_HOME/tachist/rig.ini)"},
 	[O_JSON] = {"json", NULL, "the plan and every problem as one JSON document on standard output"},
+	[O_SUBJECTS] = {"subjects", "N", "print the counterbalancing design for subjects 1 to N"},
 	OPTS_END,
 };
 
@@ -245,12 +322,21 @@ int cmd_check(int argc, char **argv)
 {
 	const char *proto_path = NULL, *rig_opt = NULL, *v;
 	int json = 0;
+	size_t subjects = 0;
 	struct opts o;
 	opts_begin(&o, "check", cmd_check_opts, argc, argv);
 	for (int k; (k = opts_next(&o, &v)) != OPTS_DONE;) {
 		switch (k) {
 		case O_RIG: rig_opt = v; break;
 		case O_JSON: json = 1; break;
+		case O_SUBJECTS: {
+			unsigned long long x;
+			if (cmd_parse_u64(v, &x) || x < 1 || x > 10000)
+				return opts_usage("check", "--subjects takes a number from 1 to 10000 (got '%s')",
+						  v);
+			subjects = (size_t)x;
+			break;
+		}
 		case OPTS_ARG:
 			if (proto_path)
 				return opts_usage("check", "one protocol at a time ('%s')", v);
@@ -278,6 +364,8 @@ int cmd_check(int argc, char **argv)
 	int ok = diag_count(&d, DIAG_ERROR) == 0;
 	if (json) {
 		cJSON *j = json_doc(p, r, l, ok && have_plan ? pl : NULL, &d, ok);
+		if (in.have_proto)
+			print_design(p, subjects, j);
 		char *s = cJSON_Print(j);
 		printf("%s\n", s);
 		free(s);
@@ -286,6 +374,8 @@ int cmd_check(int argc, char **argv)
 	cmd_print_diags(&d, stderr);
 	if (!json && ok && have_plan)
 		print_text(p, r, l, pl);
+	if (!json && ok && in.have_proto)
+		print_design(p, subjects, NULL);
 	if (!ok)
 		fprintf(stderr, "%zu error%s, %zu warning%s\n", diag_count(&d, DIAG_ERROR),
 			diag_count(&d, DIAG_ERROR) == 1 ? "" : "s", diag_count(&d, DIAG_WARNING),

@@ -3,6 +3,8 @@
  * progress line on stderr when it is a terminal. Shares its option parsing and summaries with
  * `tachist demo` (cmd_run_session). */
 #include <math.h>
+#include <poll.h>
+#include <stdbool.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
@@ -33,13 +35,45 @@ static void print_block(const struct run_block_summary *b, void *ctx)
 	fflush(stdout);
 }
 
+/* The experimenter's keys at the terminal running `run`: a letter and Enter on standard input
+ * (p pause, g go on, s skip the rest of the block, e end the session). Read without waiting. */
+struct term_ctl {
+	bool closed, paused;
+};
+
+static enum run_cmd read_terminal(struct term_ctl *t)
+{
+	while (!t->closed) {
+		struct pollfd pf = {STDIN_FILENO, POLLIN, 0};
+		if (poll(&pf, 1, 0) <= 0 || !(pf.revents & (POLLIN | POLLHUP)))
+			break;
+		char buf[64];
+		ssize_t n = read(STDIN_FILENO, buf, sizeof buf);
+		if (n <= 0) {
+			t->closed = true;
+			break;
+		}
+		for (ssize_t i = 0; i < n; i++)
+			switch (buf[i]) {
+			case 'p': case 'P': t->paused = true; break;
+			case 'g': case 'G': t->paused = false; return RUN_CMD_GO_ON;
+			case 's': case 'S': t->paused = false; return RUN_CMD_SKIP;
+			case 'e': case 'E': return RUN_CMD_END;
+			default: break;
+			}
+	}
+	return t->paused ? RUN_CMD_PAUSE : RUN_CMD_CONTINUE;
+}
+
 static enum run_cmd progress_line(const struct run_snapshot *s, void *ctx)
 {
-	(void)ctx;
-	if (s->state == RUN_STATE_ITI)
+	if (s->state == RUN_STATE_ITI && isatty(STDERR_FILENO))
 		fprintf(stderr, "\r\033[K%s: trial %zu of %zu, %.0f s left, %zu correct of %zu",
 			s->block_name, s->trial_n, s->trial_total, s->remaining_s, s->correct, s->answered);
-	return RUN_CMD_CONTINUE;
+	if (s->state == RUN_STATE_PAUSED && s->paused_by_observer && isatty(STDERR_FILENO))
+		fprintf(stderr, "\r\033[Kthe observer paused: g Enter goes on, s Enter skips the "
+			"block, e Enter ends the session");
+	return read_terminal(ctx);
 }
 
 int cmd_run_session(const struct run_options *o, char id_out[37])
@@ -61,8 +95,8 @@ int cmd_run_session(const struct run_options *o, char id_out[37])
 	printf("session %s (%s timing, seed %llu)%s\n", run_session_id(s), run_timing_mode(s),
 	       (unsigned long long)run_seed(s), o->resume_id ? " resumed" : "");
 	fflush(stdout);
-	enum run_block_result r = run_all(s, isatty(STDERR_FILENO) ? progress_line : NULL, NULL,
-					  print_block, &err);
+	struct term_ctl term = {.closed = o->headless && !isatty(STDIN_FILENO)};
+	enum run_block_result r = run_all(s, progress_line, &term, print_block, &err);
 	int code = EXIT_OK;
 	if (r == RUN_BLOCK_FAILED) {
 		fprintf(stderr, "tachist: %s\n", err ? err : "the session stopped");
@@ -91,7 +125,7 @@ int cmd_run_session(const struct run_options *o, char id_out[37])
 }
 
 enum { O_SUBJECT, O_DB, O_RIG, O_OBSERVER, O_HEADLESS, O_PACE, O_INJECT_DROPS, O_SEED, O_RESUME,
-       O_WINDOW, O_SCREENSHOTS };
+       O_WINDOW, O_SCREENSHOTS, O_ACCEPT_RIG, O_CLOCK_HZ, O_COUNTERBALANCE };
 const struct opts_row cmd_run_opts[] = {
 	[O_SUBJECT] = {"subject", "ID", "the subject's pseudonymous ID, letters and digits"},
 	[O_DB] = {"db", "FILE", "the database (run: tachist.db, demo: tachist-demo.db)"},
@@ -104,6 +138,9 @@ const struct opts_row cmd_run_opts[] = {
 	[O_RESUME] = {"resume", "SESSION", "continue this interrupted session at its first trial not stored"},
 	[O_WINDOW] = {"window", NULL, "a window instead of the full screen"},
 	[O_SCREENSHOTS] = {"screenshots", "DIR", "save PNGs of the first trial's frames into DIR"},
+	[O_ACCEPT_RIG] = {"accept-rig-mismatch", NULL, "run on a display the rig does not describe (recorded)"},
+	[O_CLOCK_HZ] = {"clock-hz", "HZ", "headless: the virtual clock's rate (default the rig's)"},
+	[O_COUNTERBALANCE] = {"counterbalance", "N", "the subject's position in the protocol's design (default: sessions begun + 1)"},
 	OPTS_END,
 };
 
@@ -125,6 +162,17 @@ int cmd_run_options(const char *cmd, int argc, char **argv, struct run_options *
 		case O_HEADLESS: o->headless = true; break;
 		case O_PACE: o->pace = true; break;
 		case O_WINDOW: o->window = true; break;
+		case O_ACCEPT_RIG: o->accept_rig_mismatch = true; break;
+		case O_COUNTERBALANCE:
+			if (cmd_parse_u64(v, &x) || x < 1 || x > 100000)
+				return opts_usage(cmd, "--counterbalance takes a position from 1 to 100000 "
+						  "(got '%s')", v);
+			o->counterbalance = (size_t)x;
+			break;
+		case O_CLOCK_HZ:
+			if (cmd_parse_double(v, &o->clock_hz) || !(o->clock_hz >= 1 && o->clock_hz <= 1000))
+				return opts_usage(cmd, "--clock-hz takes a rate from 1 to 1000 Hz (got '%s')", v);
+			break;
 		case O_SEED:
 			if (cmd_parse_u64(v, &x) || x > 4294967295ull)
 				return opts_usage(cmd, "--seed takes a whole number from 0 to 4294967295 "
@@ -147,8 +195,8 @@ int cmd_run_options(const char *cmd, int argc, char **argv, struct run_options *
 		default: return EXIT_USAGE;
 		}
 	}
-	if ((o->pace || o->inject_drops > 0) && !o->headless)
-		return opts_usage(cmd, "--pace and --inject-drops need --headless");
+	if ((o->pace || o->inject_drops > 0 || o->clock_hz > 0) && !o->headless)
+		return opts_usage(cmd, "--pace, --inject-drops and --clock-hz need --headless");
 	return 0;
 }
 

@@ -25,7 +25,7 @@ static const struct cmd commands[] = {
 	 "a terminal of at least 80x24.",
 	 cmd_console_opts, cmd_console},
 	{"check", "validate a protocol, its rig and stimuli, and print the plan",
-	 "tachist check PROTOCOL [--rig FILE] [--json]\n",
+	 "tachist check PROTOCOL [--rig FILE] [--json] [--subjects N]\n",
 	 "Reads the protocol, the rig profile and the stimulus list, reports every problem as "
 	 "FILE:LINE: message, and prints the durations in whole frames and the blocks of the plan. "
 	 "Exits 0 when the protocol can run (warnings allowed), 1 when any error was found.",
@@ -33,11 +33,13 @@ static const struct cmd commands[] = {
 	{"run", "run a session",
 	 "tachist run PROTOCOL --subject ID [--db FILE] [--rig FILE]\n"
 	 "            [--observer keyboard|model:SPEC] [--headless [--pace] [--inject-drops RATE]]\n"
-	 "            [--seed N] [--resume SESSION] [--window] [--screenshots DIR]\n",
+	 "            [--seed N] [--resume SESSION] [--window] [--screenshots DIR]\n"
+	 "            [--accept-rig-mismatch] [--clock-hz HZ] [--counterbalance N]\n",
 	 "Runs every block of the protocol on the observer's display and stores each trial in the "
 	 "database before the next one starts. Without a display, --headless runs on a virtual clock "
 	 "and the session records simulated timing. A session that was interrupted continues with "
-	 "--resume at its first trial not stored.",
+	 "--resume at its first trial not stored. A display whose size or measured refresh (more than "
+	 "2%) differs from the rig's is refused unless --accept-rig-mismatch.",
 	 cmd_run_opts, cmd_run},
 	{"timing", "measure the display's refresh",
 	 "tachist timing [--rig FILE] [--frames N] [--headless]\n",
@@ -126,7 +128,8 @@ static const struct cmd commands[] = {
 	{"demo", "run the demo protocol (keyboard with a display, model observer without)",
 	 "tachist demo [--db FILE] [--headless [--pace]] [--rig FILE] [--observer keyboard|model:SPEC]\n"
 	 "             [--subject ID] [--seed N] [--resume SESSION] [--window] [--inject-drops RATE]\n"
-	 "             [--screenshots DIR]\n",
+	 "             [--screenshots DIR] [--accept-rig-mismatch] [--clock-hz HZ]\n"
+	 "             [--counterbalance N]\n",
 	 "Runs protocols/demo.ini from the source folder on the demo stimuli and prints a short "
 	 "report. With a display the observer answers with the keyboard; without one a model "
 	 "observer answers on a virtual clock. It accepts the options of run as well.",

@@ -14,6 +14,7 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "counterbal.h"
 #include "image.h"
 #include "protocol_file.h"
 #include "rig_file.h"
@@ -135,6 +136,8 @@ int inputs_load(const struct inputs_options *o, struct inputs *in, struct diag_l
 	memset(in, 0, sizeof *in);
 	size_t errors_before = diag_count(d, DIAG_ERROR);
 	in->have_proto = protocol_load(o->protocol_path, &in->proto, d) == 0;
+	if (in->have_proto && o->design_position > 0)
+		counterbal_apply(&in->proto, o->design_position, &in->block_order, &in->key_mapping);
 	if (o->rig_text)
 		in->have_rig = rig_parse(o->rig_path ? o->rig_path : "(stored rig)", o->rig_text,
 					 &in->rig, d) == 0;
@@ -167,5 +170,7 @@ void inputs_clear(struct inputs *in)
 	stimlist_clear(&in->list);
 	rig_clear(&in->rig);
 	protocol_clear(&in->proto);
+	free(in->block_order);
+	free(in->key_mapping);
 	memset(in, 0, sizeof *in);
 }

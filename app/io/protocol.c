@@ -23,6 +23,7 @@
 #include "decimal.h"
 #include "inifile.h"
 #include "protocol_adaptive.h"
+#include "protocol_screens.h"
 #include "suggest.h"
 
 struct protocol_ctx {
@@ -370,7 +371,7 @@ static const struct protocol_section display_section = {
 static const char *const order_words[] = {"random", "fixed", NULL};
 
 enum { BK_SELECT, BK_REPEATS, BK_ORDER, BK_LONGEST_STREAK, BK_PRACTICE, BK_FEEDBACK,
-       BK_REPEAT_FAULTS, BK_ADAPTIVE };
+       BK_REPEAT_FAULTS, BK_ADAPTIVE, BK_INSTRUCTIONS };
 
 static const struct protocol_key block_keys[] = {
 	[BK_SELECT] = {"select", PTYPE_CUSTOM, 0, 0, 0, 0, NULL, 0, NULL,
@@ -391,6 +392,8 @@ static const struct protocol_key block_keys[] = {
 			      0},
 	[BK_ADAPTIVE] = {"adaptive", PTYPE_TEXT, offsetof(struct protocol_block, adaptive), 0, 0, 0,
 			 NULL, 0, NULL, offsetof(struct protocol_block, adaptive_line)},
+	[BK_INSTRUCTIONS] = {"instructions", PTYPE_PATH, offsetof(struct protocol_block, instructions),
+			     0, 0, 0, NULL, 0, NULL, offsetof(struct protocol_block, instructions_line)},
 };
 
 static int block_open(struct protocol_ctx *c, const char *name, int line)
@@ -560,6 +563,8 @@ static const struct protocol_section *const sections[] = {
 	&display_section,
 	&block_section,
 	&protocol_adaptive_section,   /* "[adaptive NAME]", app/io/protocol_adaptive.c */
+	&protocol_screens_section,    /* "[screens]", app/io/protocol_screens.c */
+	&protocol_counterbalance_section,   /* "[counterbalance]", app/io/protocol_screens.c */
 };
 #define NSECTIONS (sizeof sections / sizeof sections[0])
 

@@ -95,6 +95,13 @@ static const struct store_column session_cols[] = {
 	{"linearized", "linearized", STORE_BOOL, STORE_ALWAYS, STORE_COL_META, "",
 	 SS(linearized), NONE, "Images were passed through the inverse of the display's curve "
 	 "(1) or shown as stored (0)", NULL},
+	{"design_position", "design_position", STORE_INT, STORE_IF_ZERO, STORE_COL_META, "",
+	 SS(design_position), NONE, "The subject's position in the counterbalancing design, from 1 "
+	 "(missing without [counterbalance])", NULL},
+	{"block_order", "block_order", STORE_TEXT, STORE_IF_ZERO, STORE_COL_META, "",
+	 SS(block_order), NONE, "Blocks in the order the design gave this session", NULL},
+	{"key_mapping", "key_mapping", STORE_TEXT, STORE_IF_ZERO, STORE_COL_META, "",
+	 SS(key_mapping), NONE, "category=key pairs the design gave this session", NULL},
 };
 
 static const struct store_column trial_cols[] = {

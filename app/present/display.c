@@ -1,7 +1,8 @@
 /* display — SDL2 window, renderer and drawing (see display.h).
  *
- * One window and one renderer per session. Text uses the 8×8 font of SDL's own test library
- * (SDL_test_font), drawn scaled; its glyph cache is released when the display closes. */
+ * One window and one renderer per session. Text goes through text.c (SDL2_ttf, a fontconfig
+ * font): the protocol's font and size once display_set_text is called, before that the system's
+ * sans-serif with capitals 1/60 of the output's height. */
 #include "display.h"
 
 #include <ctype.h>
@@ -10,10 +11,10 @@
 #include <string.h>
 
 #include <SDL.h>
-#include <SDL_test_font.h>
 #include <gsl/gsl_rng.h>
 
 #include "diag.h"
+#include "text.h"
 
 struct display {
 	SDL_Window *win;
@@ -23,6 +24,7 @@ struct display {
 	int grey;
 	bool vsync, headless;
 	char driver[32];
+	struct text *text;      /* NULL until the first text is drawn or display_set_text */
 };
 
 struct display *display_open(const struct display_opts *o, char *err, size_t errlen)
@@ -95,7 +97,7 @@ void display_close(struct display *d)
 {
 	if (!d)
 		return;
-	SDLTest_CleanupTextDrawing();
+	text_close(d->text);
 	if (d->r)
 		SDL_DestroyRenderer(d->r);
 	if (d->win)
@@ -274,24 +276,78 @@ void display_draw_marker(struct display *d, int corner, int side, bool white)
 	SDL_RenderFillRect(d->r, &rc);
 }
 
-void display_draw_text(struct display *d, const char *const *lines, size_t n, int scale)
+int display_set_text(struct display *d, const char *font_file, int cap_px, char *err, size_t errlen)
 {
-	if (scale < 1)
-		scale = 1;
-	Uint8 v = d->grey < 128 ? 230 : 20;
-	float sx, sy;
-	SDL_RenderGetScale(d->r, &sx, &sy);
-	SDL_RenderSetScale(d->r, (float)scale, (float)scale);
-	int lw = d->w / scale, lh = d->h / scale;
-	int total = (int)n * FONT_LINE_HEIGHT;
-	for (size_t i = 0; i < n; i++) {
-		int len = (int)strlen(lines[i]);
-		int x = (lw - len * FONT_CHARACTER_SIZE) / 2;
-		int y = (lh - total) / 2 + (int)i * FONT_LINE_HEIGHT;
-		SDL_SetRenderDrawColor(d->r, v, v, v, 255);
-		SDLTest_DrawString(d->r, x < 0 ? 0 : x, y, lines[i]);
+	struct text *t = text_open(d->r, font_file, cap_px, err, errlen);
+	if (!t)
+		return -1;
+	text_close(d->text);
+	d->text = t;
+	return 0;
+}
+
+/* The display's text, opened with the defaults on first use; NULL when no font can be opened. */
+static struct text *text_of(struct display *d)
+{
+	if (!d->text) {
+		char err[256];
+		int cap = d->h / 60;
+		d->text = text_open(d->r, NULL, cap < 8 ? 8 : cap, err, sizeof err);
 	}
-	SDL_RenderSetScale(d->r, sx, sy);
+	return d->text;
+}
+
+int display_text_line_px(struct display *d)
+{
+	struct text *t = text_of(d);
+	return t ? text_line_px(t) : 0;
+}
+
+int display_text_width(struct display *d, const char *line)
+{
+	struct text *t = text_of(d);
+	return t ? text_width(t, line) : 0;
+}
+
+/* The grey of text on the background: light on dark, dark on light. */
+static uint8_t text_grey(const struct display *d)
+{
+	return d->grey < 128 ? 230 : 20;
+}
+
+int display_draw_lines(struct display *d, const char *const *lines, size_t n, int cx, int y,
+		       int rect[4])
+{
+	struct text *t = text_of(d);
+	int x0 = cx, x1 = cx, y1 = y, rc = 0;
+	if (!t)
+		rc = -1;
+	for (size_t i = 0; t && i < n; i++) {
+		int box[4];
+		if (text_draw(t, lines[i], cx, y + (int)i * text_line_px(t), text_grey(d), box))
+			rc = -1;
+		if (box[2] > 0) {
+			if (box[0] < x0) x0 = box[0];
+			if (box[0] + box[2] > x1) x1 = box[0] + box[2];
+			if (box[1] + box[3] > y1) y1 = box[1] + box[3];
+		}
+	}
+	if (rect) {
+		rect[0] = x0;
+		rect[1] = y;
+		rect[2] = x1 - x0;
+		rect[3] = y1 - y;
+	}
+	return rc;
+}
+
+int display_draw_text(struct display *d, const char *const *lines, size_t n)
+{
+	struct text *t = text_of(d);
+	if (!t)
+		return -1;
+	int total = (int)n * text_line_px(t);
+	return display_draw_lines(d, lines, n, d->w / 2, (d->h - total) / 2, NULL);
 }
 
 uint8_t *display_read_pixels(struct display *d, int *w, int *h)
@@ -314,7 +370,10 @@ int display_poll_key(struct display *d, char *key, size_t keylen, uint32_t *t_ms
 		if (ev.type == SDL_QUIT)
 			return 2;
 		if (ev.type == SDL_KEYDOWN && !ev.key.repeat) {
-			snprintf(key, keylen, "%s", SDL_GetKeyName(ev.key.keysym.sym));
+			/* Ctrl+Alt with a key is the experimenter's chord, named apart from the key. */
+			bool chord = (ev.key.keysym.mod & KMOD_CTRL) && (ev.key.keysym.mod & KMOD_ALT);
+			snprintf(key, keylen, "%s%s", chord ? "ctrl+alt+" : "",
+				 SDL_GetKeyName(ev.key.keysym.sym));
 			for (char *p = key; *p; p++)
 				*p = (char)tolower((unsigned char)*p);
 			if (t_ms)

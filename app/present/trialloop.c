@@ -101,6 +101,13 @@ static void draw(struct trialloop *tl, enum epoch e)
 		if (tl->c.mask)
 			display_draw_texture(d, tl->c.mask, tl->c.stim_px);
 		break;
+	case EPOCH_RESPONSE:
+		if (tl->c.nlegend) {
+			int w, h;
+			display_size(d, &w, &h);
+			display_draw_lines(d, tl->c.legend, tl->c.nlegend, w / 2, tl->c.legend_y, NULL);
+		}
+		break;
 	case EPOCH_FEEDBACK:
 		display_draw_feedback(d, tl->rec->correct == 1,
 				      tl->c.fixation_px > 0 ? 2 * tl->c.fixation_px : tl->c.stim_px / 8);
@@ -310,13 +317,10 @@ int trialloop_screen(struct trialloop *tl, const char *const *lines, size_t nlin
 		     int (*tick)(void *ctx), void *ctx, double max_ms)
 {
 	struct display *d = tl->c.disp;
-	int w, h;
-	display_size(d, &w, &h);
-	int scale = w >= 1600 ? 4 : w >= 800 ? 3 : 2;
 	int64_t t0 = dclock_monotonic_ns(), last_tick = 0;
 	for (;;) {
 		display_clear(d);
-		display_draw_text(d, lines, nlines, scale);
+		display_draw_text(d, lines, nlines);
 		display_draw_marker(d, tl->c.marker_corner, tl->c.marker_px, false);
 		dclock_flip(tl->c.clock);
 		if (tl->c.clock->simulated)

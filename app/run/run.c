@@ -115,10 +115,10 @@ static void shot_hook(void *ctx, enum epoch e, int frame, bool stim)
 /* Loads protocol, rig, list and images and builds the plan through the one loader `check` uses,
  * so a session refuses to begin on anything check would refuse, with its messages in D. */
 static int load_inputs(struct run_session *s, const struct run_options *o, const char *rig_text,
-		       uint64_t seed, struct diag_list *d, char **err)
+		       uint64_t seed, size_t position, struct diag_list *d, char **err)
 {
 	struct inputs_options io = {.protocol_path = o->protocol_path, .rig_path = o->rig_path,
-				    .rig_text = rig_text, .seed = seed};
+				    .rig_text = rig_text, .seed = seed, .design_position = position};
 	struct inputs in;
 	if (inputs_load(&io, &in, d)) {
 		inputs_clear(&in);
@@ -131,15 +131,19 @@ static int load_inputs(struct run_session *s, const struct run_options *o, const
 	s->rig = in.rig;
 	s->list = in.list;
 	s->plan = in.plan;
+	s->ss.design_position = (int)position;
+	free(s->ss.block_order);
+	free(s->ss.key_mapping);
+	s->ss.block_order = in.block_order;
+	s->ss.key_mapping = in.key_mapping;
 	s->have_proto = s->have_rig = s->have_list = s->have_plan = true;
 	s->linearize = s->proto.linearize && rig_lum_tables(&s->rig, s->lin);
 	return 0;
 }
 
 /* The observer's window: refused when there is no real display (unless headless) or when it is
- * smaller than the stimulus; a warning when its size differs from the rig's. */
-static int open_display(struct run_session *s, const struct run_options *o, struct diag_list *d,
-			char **err)
+ * smaller than the stimulus (a size other than the rig's is rig_match's). */
+static int open_display(struct run_session *s, const struct run_options *o, char **err)
 {
 	char e[512];
 	struct display_opts dopt = {
@@ -168,10 +172,6 @@ static int open_display(struct run_session *s, const struct run_options *o, stru
 				 h < sh ? h : sh);
 		return -1;
 	}
-	if (!o->headless && (sw != s->rig.width_px || sh != s->rig.height_px))
-		diag_add(d, DIAG_WARNING, s->rig.path, 0, "the display is %d×%d px but the rig says "
-			 "%d×%d px: sizes in degrees are only right when the rig matches the display",
-			 sw, sh, s->rig.width_px, s->rig.height_px);
 	return 0;
 }
 
@@ -181,7 +181,7 @@ static int open_clock(struct run_session *s, const struct run_options *o, struct
 {
 	if (o->headless) {
 		struct dclock_virtual_opts vo = {
-			.hz = s->rig.refresh_hz, .drop_rate = o->inject_drops, .drop_frames = 1,
+			.hz = o->clock_hz > 0 ? o->clock_hz : s->rig.refresh_hz, .drop_rate = o->inject_drops, .drop_frames = 1,
 			.jitter_ms = o->inject_jitter_ms, .seed = s->plan.seed ^ 0x5eedc10cull,
 			.pace = o->pace,
 		};
@@ -197,6 +197,62 @@ static int open_clock(struct run_session *s, const struct run_options *o, struct
 		s->clock = dclock_vsync_new(display_renderer(s->disp), s->rig.refresh_hz);
 	}
 	return 0;
+}
+
+/* The rig must describe the display it runs on: a screen of another size than the rig's pixels (a
+ * real display) or a refresh measured more than RIG_HZ_TOLERANCE percent from the rig's refuses the
+ * session before anything is stored, with both values and the fix. With accept_rig_mismatch the
+ * session runs and *NOTE (malloc'd, NULL when all matches) is recorded as its event. The 2% bound
+ * is the issue's choice (common practice, no source): a 60 Hz rig on a 59.94 Hz display passes, a
+ * 120 Hz rig on a 60 Hz display does not. A virtual clock (headless) runs at the rate it was made
+ * with (--clock-hz), so its rate is read, not measured. Returns 0 or -1 with *ERR. */
+#define RIG_HZ_TOLERANCE 2.0
+static int rig_match(struct run_session *s, const struct run_options *o, char **note, char **err)
+{
+	*note = NULL;
+	char *size = NULL, *rate = NULL;
+	int sw, sh;
+	display_screen_size(s->disp, &sw, &sh);
+	if (!o->headless && (sw != s->rig.width_px || sh != s->rig.height_px))
+		size = xasprintf("the display is %d×%d px but the rig %s says %d×%d px", sw, sh,
+				 s->rig.path, s->rig.width_px, s->rig.height_px);
+	double hz = 1e9 / (double)s->clock->period_ns;   /* a virtual clock's rate is its period's */
+	if (!s->clock->simulated) {
+		int64_t flips[MEASURE_FLIPS];
+		struct frames_measure m;
+		if (trialloop_measure(s->tl, flips, MEASURE_FLIPS) ||
+		    frames_measure(flips, MEASURE_FLIPS, s->rig.refresh_hz, &m)) {
+			free(size);
+			*err = xasprintf("the refresh measurement was interrupted");
+			return -1;
+		}
+		/* The first block takes this measurement instead of flipping another 120 frames. */
+		s->premeasured = m;
+		s->have_premeasured = true;
+		hz = m.rate_hz;
+	}
+	double off = (hz - s->rig.refresh_hz) / s->rig.refresh_hz * 100.0;
+	if (fabs(off) > RIG_HZ_TOLERANCE)
+		rate = xasprintf("the display refreshes at %.3f Hz (%s) but the rig %s says "
+				 "%.3f Hz (%+.1f%%, more than %.0f%%)", hz,
+				 s->clock->simulated ? "virtual clock" : "measured", s->rig.path,
+				 s->rig.refresh_hz, off, RIG_HZ_TOLERANCE);
+	if (!size && !rate)
+		return 0;
+	char *both = xasprintf("%s%s%s", size ? size : "", size && rate ? "; " : "", rate ? rate : "");
+	free(size);
+	free(rate);
+	if (o->accept_rig_mismatch) {
+		*note = both;
+		return 0;
+	}
+	*err = xasprintf("%s. Sizes in degrees and durations in frames are only right on the display "
+			 "the rig describes: set width_px, height_px and refresh_hz in [screen] of "
+			 "the rig to what the display does (`tachist timing` measures the refresh), "
+			 "or set the display to the rig's mode; --accept-rig-mismatch runs anyway "
+			 "and records that choice", both);
+	free(both);
+	return -1;
 }
 
 /* The responder: the keyboard (the protocol's keys) or the model observer O->observer names. */
@@ -253,7 +309,7 @@ static int make_mask(struct run_session *s, char **err)
 static int open_presenter(struct run_session *s, const struct run_options *o, struct diag_list *d,
 			  char **err)
 {
-	if (open_display(s, o, d, err) || open_clock(s, o, d, err) || open_responder(s, o, err))
+	if (open_display(s, o, err) || open_clock(s, o, d, err) || open_responder(s, o, err))
 		return -1;
 	s->paced = s->keyboard && !o->no_observer_screens;
 	if (make_mask(s, err))
@@ -266,6 +322,8 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		.nchoices = (int)s->proto.nchoices, .mask = s->mask, .stop = &run_stop_flag,
 	};
 	memcpy(tc.epoch_frames, s->plan.epoch_frames, sizeof tc.epoch_frames);
+	if (run_screens_setup(s, &tc, d, err))
+		return -1;
 	if (tc.fixation_px < 0)
 		tc.fixation_px = 0;
 	if (s->screenshot_dir) {
@@ -387,7 +445,7 @@ static int resume_load(struct run_session *s, const struct run_options *o, struc
 				 "another host); resume it once that run has ended", s->ss.id);
 		return -1;
 	}
-	if (load_inputs(s, o, s->ss.rig_text, s->ss.seed, d, err))
+	if (load_inputs(s, o, s->ss.rig_text, s->ss.seed, (size_t)s->ss.design_position, d, err))
 		return -1;
 	char hex[65];
 	sha256_hex(s->proto.text, strlen(s->proto.text), hex);
@@ -426,6 +484,46 @@ static int resume_begin(struct run_session *s, const char *mode, struct diag_lis
 	if (rc)
 		return -1;
 	s->ss.status = STORE_RUNNING;
+	return 0;
+}
+
+/* The subject's position in the protocol's counterbalancing design for a new session: 0 when the
+ * protocol has no [counterbalance]; else --counterbalance N, or one more than the sessions of this
+ * protocol (by name) already begun in the database, whatever their status. Returns 0 or -1. */
+static int design_position(struct run_session *s, const struct run_options *o, struct diag_list *d,
+			   size_t *pos, char **err)
+{
+	*pos = 0;
+	struct protocol p;
+	struct diag_list ignored;
+	diag_init(&ignored);
+	bool cb = protocol_load(o->protocol_path, &p, &ignored) == 0 &&
+		  (p.counterbalance.block_order || p.counterbalance.key_mapping);
+	char *name = cb ? xstrdup(p.name) : NULL;
+	protocol_clear(&p);
+	diag_clear(&ignored);
+	if (!cb) {
+		if (o->counterbalance)
+			diag_add(d, DIAG_WARNING, o->protocol_path, 0, "--counterbalance %zu is ignored: "
+				 "the protocol has no [counterbalance] section", o->counterbalance);
+		return 0;   /* load_inputs reports the protocol's errors */
+	}
+	if (o->counterbalance) {
+		*pos = o->counterbalance;
+		free(name);
+		return 0;
+	}
+	struct store_session *v = NULL;
+	size_t n = 0, k = 0;
+	if (store_sessions_list(s->store, NULL, &v, &n, err)) {
+		free(name);
+		return -1;
+	}
+	for (size_t i = 0; i < n; i++)
+		k += v[i].protocol_name && !strcmp(v[i].protocol_name, name);
+	store_sessions_free(v, n);
+	free(name);
+	*pos = k + 1;
 	return 0;
 }
 
@@ -485,7 +583,9 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 			*err = xasprintf("no rig profile");
 			goto fail;
 		}
-		if (load_inputs(s, o, NULL, seed, d, err))
+		size_t position = 0;
+		if (design_position(s, o, d, &position, err) ||
+		    load_inputs(s, o, NULL, seed, position, d, err))
 			goto fail;
 	}
 	s->stored = xcalloc(s->plan.ntrials + 1, sizeof *s->stored);
@@ -494,11 +594,19 @@ struct run_session *run_open(const struct run_options *o, struct diag_list *d, c
 	s->skipped = xcalloc(s->plan.nblocks + 1, sizeof *s->skipped);
 	for (size_t b = 0; b < s->plan.nblocks; b++)
 		s->next_bt[b] = (int)s->plan.blocks[b].ntrials;
-	if (open_presenter(s, o, d, err))
+	char *mismatch = NULL;
+	if (open_presenter(s, o, d, err) || rig_match(s, o, &mismatch, err))
 		goto fail;
 	const char *mode = o->headless ? "simulated" : "vsync";
-	if (o->resume_id ? resume_begin(s, mode, d, err) : session_begin(s, o, mode, err))
+	if ((o->resume_id ? resume_begin(s, mode, d, err) : session_begin(s, o, mode, err)) ||
+	    (mismatch && store_event(s->store, s->ss.id, "rig_mismatch_accepted", mismatch, err))) {
+		free(mismatch);
 		goto fail;
+	}
+	if (mismatch)
+		diag_add(d, DIAG_WARNING, s->rig.path, 0, "running although %s (--accept-rig-mismatch, "
+			 "recorded as an event of the session)", mismatch);
+	free(mismatch);
 	if (!o->no_signal_handlers)
 		install_handlers(s);
 	run_stop_flag = 0;
@@ -522,12 +630,13 @@ fail:
 int run_measure_refresh(struct run_session *s, struct run_refresh *out, char **err)
 {
 	int64_t flips[MEASURE_FLIPS];
-	if (trialloop_measure(s->tl, flips, MEASURE_FLIPS)) {
+	struct frames_measure m = s->premeasured;
+	if (s->have_premeasured) {
+		s->have_premeasured = false;
+	} else if (trialloop_measure(s->tl, flips, MEASURE_FLIPS)) {
 		*err = xasprintf("the refresh measurement was interrupted");
 		return -1;
-	}
-	struct frames_measure m;
-	if (frames_measure(flips, MEASURE_FLIPS, s->rig.refresh_hz, &m)) {
+	} else if (frames_measure(flips, MEASURE_FLIPS, s->rig.refresh_hz, &m)) {
 		*err = xasprintf("too few flips to measure the refresh");
 		return -1;
 	}
@@ -617,6 +726,48 @@ int run_block_skip(struct run_session *s, size_t i, char **err)
 }
 
 
+/* The end screen's watcher: leaves on the experimenter's END or GO_ON. */
+struct end_watch {
+	run_progress_fn progress;
+	void *ctx;
+	struct run_session *s;
+};
+
+static int end_tick(void *ctx)
+{
+	struct end_watch *w = ctx;
+	if (!w->progress)
+		return 0;
+	struct run_snapshot sn;
+	memset(&sn, 0, sizeof sn);
+	sn.state = RUN_STATE_BREAK;
+	sn.block = -1;
+	sn.block_name = "end";
+	sn.session_total = w->s->plan.ntrials;
+	for (size_t k = 0; k < w->s->plan.ntrials; k++)
+		sn.session_done += w->s->stored[k];
+	sn.accuracy = sn.median_rt_ms = NAN;
+	sn.timing_mode = w->s->ss.timing_mode;
+	sn.session_id = w->s->ss.id;
+	enum run_cmd c = w->progress(&sn, w->ctx);
+	return c == RUN_CMD_END || c == RUN_CMD_GO_ON;
+}
+
+/* A keyboard observer's end screen: thanks, held until the experimenter closes it (the watcher,
+ * the chord Ctrl+Alt+E or G, or closing the window). Every trial is stored before it shows. */
+static void run_end_screen(struct run_session *s, run_progress_fn progress, void *ctx)
+{
+	if (!s->paced || s->failed)
+		return;
+	struct run_text t = {0};
+	run_screen_end(&t);
+	run_screen_shot(s, "end", &t);
+	static const char *const keys[] = {"ctrl+alt+e", "ctrl+alt+g"};
+	struct end_watch w = {progress, ctx, s};
+	trialloop_screen(s->tl, (const char *const *)t.v, t.n, keys, 2, false, end_tick, &w, 0);
+	run_text_free(&t);
+}
+
 enum run_block_result run_all(struct run_session *s, run_progress_fn progress, void *ctx,
 			      void (*on_block)(const struct run_block_summary *, void *),
 			      char **err)
@@ -635,6 +786,8 @@ enum run_block_result run_all(struct run_session *s, run_progress_fn progress, v
 		if (r != RUN_BLOCK_DONE)
 			break;
 	}
+	if (r == RUN_BLOCK_DONE || r == RUN_BLOCK_ENDED)
+		run_end_screen(s, progress, ctx);
 	return r;
 }
 
@@ -690,6 +843,10 @@ int run_close(struct run_session *s, char **err)
 	free(s->next_bt);
 	free(s->runs);
 	free(s->skipped);
+	run_text_free(&s->legend);
+	for (size_t i = 0; i < s->nshot_names; i++)
+		free(s->shot_names[i]);
+	free(s->shot_names);
 	free(s);
 	return rc;
 }

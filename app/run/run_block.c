@@ -46,6 +46,7 @@ struct blockrun {
 	int64_t t0;
 	enum run_state state;
 	bool paused_by_observer;
+	bool pause_taken;        /* the watcher answered PAUSE during the observer's pause */
 	enum run_cmd last_cmd;
 
 	/* The queue: Q[0..NQ) of capacity CAPQ; QI is the trial shown next, REQUESTED the first not
@@ -116,10 +117,17 @@ static int tick_break(void *ctx)
 	return call_progress(br, RUN_STATE_BREAK) == RUN_CMD_END;
 }
 
+/* The observer's pause is left by the experimenter only: RUN_CMD_GO_ON, RUN_CMD_SKIP or
+ * RUN_CMD_END from the watcher, or the console's pause taken and released (PAUSE, then CONTINUE). */
 static int tick_observer_pause(void *ctx)
 {
 	struct blockrun *br = ctx;
-	return call_progress(br, RUN_STATE_PAUSED) == RUN_CMD_END;
+	enum run_cmd c = call_progress(br, RUN_STATE_PAUSED);
+	if (c == RUN_CMD_PAUSE)
+		br->pause_taken = true;
+	if (c == RUN_CMD_CONTINUE && br->pause_taken)
+		br->last_cmd = RUN_CMD_GO_ON;
+	return br->last_cmd == RUN_CMD_GO_ON || c == RUN_CMD_SKIP || c == RUN_CMD_END;
 }
 
 static int tick_console_pause(void *ctx)
@@ -139,23 +147,33 @@ static enum flow event(struct run_session *s, const char *kind, const char *deta
 	return FLOW_ON;
 }
 
-/* The observer pressed Escape: the pause menu. */
+/* The observer's chords: keys the experimenter presses on the observer's keyboard, never shown on
+ * the observer's screen (Ctrl+Alt held with G go on, S skip the block, E end the session). */
+static const char *const chord_keys[] = {"ctrl+alt+g", "ctrl+alt+s", "ctrl+alt+e"};
+
+/* The observer pressed Escape: the pause screen, until the experimenter decides (the watcher, or a
+ * chord on the observer's keyboard). */
 static enum flow observer_pause(struct blockrun *br, char **err)
 {
 	struct run_session *s = br->s;
 	if (event(s, "pause", "observer", err) != FLOW_ON)
 		return FLOW_END;
-	static const char *const lines[] = {"Paused", "", "R  go on", "S  skip the rest of this block",
-					    "Q  end the session (answers so far are kept)"};
-	static const char *const keys[] = {"r", "s", "q"};
+	struct run_text t = {0};
+	run_screen_pause(&t);
+	run_screen_shot(s, "pause", &t);
 	br->paused_by_observer = true;
-	int k = trialloop_screen(s->tl, lines, 5, keys, 3, false, tick_observer_pause, br, 0);
+	br->pause_taken = false;
+	br->last_cmd = RUN_CMD_CONTINUE;
+	int k = trialloop_screen(s->tl, (const char *const *)t.v, t.n, chord_keys, 3, false,
+				 tick_observer_pause, br, 0);
+	run_text_free(&t);
 	br->paused_by_observer = false;
+	if (k == -1)
+		k = br->last_cmd == RUN_CMD_GO_ON ? 0 : br->last_cmd == RUN_CMD_SKIP ? 1 : 2;
 	switch (k) {
-	case 0: return event(s, "resume", "observer", err);
+	case 0: return event(s, "resume", "experimenter", err);
 	case 1: return event(s, "skip", run_pblock(s, br->block)->name, err) == FLOW_ON ? FLOW_SKIP : FLOW_END;
-	case 2: event(s, "end", "observer", err); return FLOW_END;
-	case -1: event(s, "end", "experimenter", err); return FLOW_END;
+	case 2: event(s, "end", "experimenter", err); return FLOW_END;
 	default: return FLOW_STOP;
 	}
 }
@@ -168,7 +186,7 @@ static enum flow console_pause(struct blockrun *br, char **err)
 		return FLOW_END;
 	static const char *const lines[] = {"Paused", "", "Please wait for the experimenter"};
 	int k = trialloop_screen(s->tl, lines, 3, NULL, 0, false, tick_console_pause, br, 0);
-	if (k == -1 && br->last_cmd == RUN_CMD_CONTINUE)
+	if (k == -1 && br->last_cmd != RUN_CMD_END)
 		return event(s, "resume", "experimenter", err);
 	if (k == -1) {
 		event(s, "end", "experimenter", err);
@@ -177,17 +195,21 @@ static enum flow console_pause(struct blockrun *br, char **err)
 	return FLOW_STOP;
 }
 
-/* A rest or start screen. The keyboard observer goes on with space; the model goes on at once. */
-static enum flow break_screen(struct blockrun *br, const char *title, char **err)
+/* A start, rest or ready screen (LINES). The keyboard observer goes on with space; the model goes
+ * on at once. The screen is saved as NAME with --screenshots. */
+static enum flow break_screen(struct blockrun *br, const char *name, struct run_text *t, char **err)
 {
 	struct run_session *s = br->s;
 	if (!s->paced) {
+		run_text_free(t);
 		return call_progress(br, RUN_STATE_BREAK) == RUN_CMD_END
 			       ? (event(s, "end", "experimenter", err), FLOW_END) : FLOW_ON;
 	}
-	const char *lines[] = {title, "", "Press SPACE to go on"};
+	run_screen_shot(s, name, t);
 	static const char *const keys[] = {"space"};
-	int k = trialloop_screen(s->tl, lines, 3, keys, 1, true, tick_break, br, 0);
+	int k = trialloop_screen(s->tl, (const char *const *)t->v, t->n, keys, 1, true, tick_break,
+				 br, 0);
+	run_text_free(t);
 	if (k == 0)
 		return FLOW_ON;
 	if (k == -3)
@@ -199,6 +221,15 @@ static enum flow break_screen(struct blockrun *br, const char *title, char **err
 	return FLOW_STOP;
 }
 
+/* The screen after a pause. */
+static enum flow ready_screen(struct blockrun *br, char **err)
+{
+	struct run_text t = {0};
+	run_text_add(&t, "Ready?");
+	run_text_add(&t, "");
+	run_text_add(&t, "Press SPACE to go on");
+	return break_screen(br, "ready", &t, err);
+}
 
 static void remember(struct blockrun *br, const struct trial_record *r)
 {
@@ -314,10 +345,10 @@ static enum flow block_begin(struct blockrun *br, char **err)
 			s->failed = true;
 	}
 	if (fl == FLOW_ON) {
-		char *title = xasprintf("Block %zu of %zu%s", br->block + 1, s->plan.nblocks,
-					prb->practice ? " (practice)" : "");
-		fl = break_screen(br, title, err);
-		free(title);
+		struct run_text t = {0};
+		run_screen_instructions(s, br->block, !s->instructed, &t);
+		s->instructed = true;
+		fl = break_screen(br, "instructions", &t, err);
 	}
 	return fl;
 }
@@ -425,14 +456,16 @@ static enum flow trial_after(struct blockrun *br, char **err)
 	if (cmd == RUN_CMD_PAUSE) {
 		enum flow fl = console_pause(br, err);
 		if (fl == FLOW_ON && s->paced)
-			fl = break_screen(br, "Ready?", err);
+			fl = ready_screen(br, err);
 		return fl;
 	}
 	enum trialloop_status is = trialloop_iti_finish(s->tl);
 	if (is == TRIALLOOP_STOP)
 		return FLOW_STOP;
-	if (is == TRIALLOOP_PAUSE)
-		return observer_pause(br, err);
+	if (is == TRIALLOOP_PAUSE) {
+		enum flow fl = observer_pause(br, err);
+		return fl == FLOW_ON && s->paced ? ready_screen(br, err) : fl;
+	}
 	return FLOW_ON;
 }
 
@@ -448,7 +481,10 @@ static enum flow block_step(struct blockrun *br, char **err)
 	if (s->proto.break_every > 0 && br->sum.trials > 0 && br->sum.trials != br->rested_at &&
 	    br->sum.trials % (size_t)s->proto.break_every == 0) {
 		br->rested_at = br->sum.trials;
-		enum flow fl = break_screen(br, "Rest a moment", err);
+		struct run_text t = {0};
+		run_screen_break(s, br->block, br->sum.trials, br->total, br->sum.correct,
+				 br->sum.answered, &t);
+		enum flow fl = break_screen(br, "break", &t, err);
 		if (fl != FLOW_ON)
 			return fl;
 	}
@@ -473,7 +509,7 @@ static enum flow block_step(struct blockrun *br, char **err)
 	if (rc == TRIALLOOP_PAUSE) {
 		/* Abandoned: shown again after the pause. */
 		enum flow fl = observer_pause(br, err);
-		return fl == FLOW_ON ? break_screen(br, "Ready?", err) : fl;
+		return fl == FLOW_ON ? ready_screen(br, err) : fl;
 	}
 	if (rc == TRIALLOOP_STOP)
 		return FLOW_STOP;

@@ -15,6 +15,7 @@
 #include <stdint.h>
 
 #include "epoch.h"
+#include "frames.h"
 #include "plan.h"
 #include "protocol.h"
 #include "rig.h"
@@ -32,6 +33,13 @@ struct trialloop;
 struct preload;
 struct SDL_Texture;
 struct trial_record;
+struct trialloop_config;
+
+/* Lines of text for the observer's screens (run_screens.c): malloc'd UTF-8 lines. */
+struct run_text {
+	char **v;
+	size_t n;
+};
 
 struct run_session {
 	struct protocol proto;
@@ -68,11 +76,17 @@ struct run_session {
 	uint64_t serial;         /* preload ids */
 	double refresh_hz;
 	struct run_refresh refresh;
+	struct frames_measure premeasured;   /* rig_match's, taken by the first refresh measurement */
+	bool have_premeasured;
 	bool failed, ended, interrupted;
 	bool live;               /* the session row is ours to end (run_open succeeded) */
 	char *recover_err;       /* why store_recover could not mark orphans, or NULL */
 	const char *screenshot_dir;
 	bool shots_done;
+	char **shot_names;       /* text screens already saved (run_screen_shot) */
+	size_t nshot_names;
+	struct run_text legend;  /* the response window's key legend; empty when off */
+	bool instructed;         /* the session's instructions were shown in this process */
 	int shot_epoch_seen[EPOCH_COUNT];
 	struct sigaction old_int, old_term, old_hup;
 	bool handlers;
@@ -99,6 +113,24 @@ static inline const struct protocol_block *run_pblock(const struct run_session *
 size_t run_pending_in(const struct run_session *s, size_t b);
 /* Drops the owed repeat of session trial TRIAL (it has been stored). */
 void run_pending_done(struct run_session *s, int trial);
+
+/* run_screens.c */
+void run_text_add(struct run_text *t, const char *line);
+void run_text_free(struct run_text *t);
+/* The display's font and text size from [screens], and the response window's legend in TC (a
+ * warning in D when it does not fit below the stimulus). Returns 0 or -1 with *ERR. */
+int run_screens_setup(struct run_session *s, struct trialloop_config *tc, struct diag_list *d,
+		      char **err);
+/* The start screen of BLOCK (the session's instructions first when FIRST), with the keys. */
+void run_screen_instructions(struct run_session *s, size_t block, bool first, struct run_text *t);
+/* A rest break: progress in the block, the accuracy when the block is practice or the protocol
+ * asks (break_accuracy). */
+void run_screen_break(struct run_session *s, size_t block, size_t done, size_t total,
+		      size_t correct, size_t answered, struct run_text *t);
+void run_screen_pause(struct run_text *t);
+void run_screen_end(struct run_text *t);
+/* With --screenshots: saves T as DIR/screen-NAME.png, once per NAME. */
+void run_screen_shot(struct run_session *s, const char *name, const struct run_text *t);
 
 /* run_adaptive.c */
 /* Resume: marks planned trials of finished staircases as done. Returns 0 or -1 with *ERR. */
