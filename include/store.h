@@ -68,6 +68,9 @@ struct store_session {
 	int planned_trials;        /* trials in the plan; 0 = unknown (sessions before schema 4) */
 	int owner_pid;             /* process running it (store_session_begin and _own fill it) */
 	char *owner_host;
+	char *response_device;     /* the response keyboard's name; NULL = SDL keys */
+	char *response_usb;        /* its USB "vvvv:pppp", NULL when unknown */
+	char *trigger_port;        /* serial port of the trigger codes, NULL = none */
 };
 
 /* Opens or creates PATH and brings its schema up to date. Returns 0 and *OUT, or -1 and *ERR
@@ -188,7 +191,9 @@ struct store_trial {
 	bool has_level_requested;
 	double level_requested;
 	int repeat_of;              /* -1, or the trial this one repeats */
-	const char *rt_clock;       /* what stamped the response: "frame" (SDL, after a flip) */
+	const char *rt_clock;       /* what stamped the response: "frame" (SDL, after a flip),
+				     * "kernel" (the input device) or "model" */
+	int64_t trigger_ns;         /* onset trigger written, 0 = none */
 #ifdef TACHIST_TEST_COLUMN
 	int test_column;            /* a column that exists only in the column-table test build */
 #endif

@@ -67,7 +67,9 @@ struct trialloop_trial {
 	bool feedback;
 };
 
-enum trialloop_status { TRIALLOOP_DONE, TRIALLOOP_PAUSE, TRIALLOOP_STOP };
+/* FAULT: the response device or the trigger port failed; the trial is abandoned and
+ * trialloop_fault says why. */
+enum trialloop_status { TRIALLOOP_DONE, TRIALLOOP_PAUSE, TRIALLOOP_STOP, TRIALLOOP_FAULT };
 
 struct trialloop_key {
 	char key[24];
@@ -88,11 +90,14 @@ void trialloop_set_period(struct trialloop *tl, int64_t period_ns);
  * the trial abandoned. */
 enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop_trial *t,
 				    struct trial_record *rec);
+/* Why the last trialloop_run returned TRIALLOOP_FAULT ("" otherwise). */
+const char *trialloop_fault(const struct trialloop *tl);
 /* Keys ignored or anticipated in the last trial. */
 const struct trialloop_key *trialloop_ignored(const struct trialloop *tl, size_t *n);
 
 /* Flips the rest of the ITI begun by the last trialloop_run. Returns TRIALLOOP_DONE, or
- * PAUSE/STOP when Escape, a window close or the stop flag came during it. */
+ * PAUSE/STOP when Escape, a window close or the stop flag came during it, or FAULT when the
+ * response device failed at the end of the (complete, storable) trial. */
 enum trialloop_status trialloop_iti_finish(struct trialloop *tl);
 
 /* A text screen (LINES) held until one of KEYS is pressed (returns its index), TICK returns

@@ -31,7 +31,8 @@ struct trialloop {
 	const struct trialloop_trial *t;
 	struct trial_record *rec;
 	int64_t onset_ns;
-	bool abandoned_pause, abandoned_stop;
+	bool abandoned_pause, abandoned_stop, abandoned_fault;
+	char fault[400];               /* why abandoned_fault */
 	bool window_open;              /* answers still count */
 	enum trialloop_status pending; /* Escape/stop that came with the first ITI flip */
 	int64_t prof_mark, prof_work;  /* on_work: start of the current own-work stretch, its sum */
@@ -148,6 +149,12 @@ static bool poll_all(struct trialloop *tl)
 			tl->abandoned_stop = true;
 			return false;
 		}
+		if (ev.kind == RESP_LOST) {
+			tl->abandoned_fault = true;
+			snprintf(tl->fault, sizeof tl->fault, "the response device stopped: %s",
+				 responder_error(tl->c.resp));
+			return false;
+		}
 		if (ev.kind != RESP_KEY)
 			continue;
 		bool before = !tl->onset_ns || ev.t_ns < tl->onset_ns;
@@ -174,7 +181,14 @@ static bool poll_all(struct trialloop *tl)
 
 static enum trialloop_status abandon(struct trialloop *tl)
 {
+	if (tl->abandoned_fault)
+		return TRIALLOOP_FAULT;
 	return tl->abandoned_stop ? TRIALLOOP_STOP : TRIALLOOP_PAUSE;
+}
+
+const char *trialloop_fault(const struct trialloop *tl)
+{
+	return tl->abandoned_fault ? tl->fault : "";
 }
 
 enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop_trial *t,
@@ -186,7 +200,8 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 	tl->nflips = 0;
 	tl->nignored = 0;
 	tl->onset_ns = 0;
-	tl->abandoned_pause = tl->abandoned_stop = false;
+	tl->abandoned_pause = tl->abandoned_stop = tl->abandoned_fault = false;
+	tl->fault[0] = '\0';
 	tl->window_open = true;
 	tl->pending = TRIALLOOP_DONE;
 	tl->prof_mark = tl->prof_work = 0;   /* per-trial set-up is not per-frame work */
@@ -198,6 +213,7 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 	rec->has_rt = false;
 	rec->rt_ms = NAN;
 	rec->key_sdl_ms = 0;
+	rec->rt_clock = tl->c.resp->rt_clock;
 	rec->frames_planned = ef[EPOCH_STIMULUS];
 	rec->onset_ns = rec->offset_ns = 0;
 
@@ -253,8 +269,9 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 	draw(tl, EPOCH_ITI);
 	tl->iti_start_ns = flip(tl, EPOCH_ITI, 0);
 	tl->iti_frames = ef[EPOCH_ITI] > 0 ? ef[EPOCH_ITI] : 1;
-	if (!poll_all(tl))   /* the trial is complete: keep it, pause or stop after storing it */
-		tl->pending = tl->abandoned_stop ? TRIALLOOP_STOP : TRIALLOOP_PAUSE;
+	if (!poll_all(tl))   /* the trial is complete: keep it, pause, stop or fail after storing it */
+		tl->pending = tl->abandoned_fault ? TRIALLOOP_FAULT
+			      : tl->abandoned_stop ? TRIALLOOP_STOP : TRIALLOOP_PAUSE;
 
 	int64_t p = tl->c.period_ns;
 	rec->start_ns = tl->flips[0];

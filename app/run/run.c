@@ -19,6 +19,7 @@
 #include "adapt.h"
 #include "dclock.h"
 #include "display.h"
+#include "evsrc.h"
 #include "frames.h"
 #include "geom.h"
 #include "image.h"
@@ -207,9 +208,22 @@ static int open_responder(struct run_session *s, const struct run_options *o, ch
 		const char *keys[PROTOCOL_MAX_CHOICES];
 		for (size_t i = 0; i < s->proto.nchoices; i++)
 			keys[i] = s->proto.choices[i].key;
-		s->resp = responder_keyboard_new(keys, (int)s->proto.nchoices);
 		s->keyboard = true;
 		snprintf(s->observer_text, sizeof s->observer_text, "keyboard");
+		if (!s->rig.input_device) {
+			s->resp = responder_keyboard_new(keys, (int)s->proto.nchoices);
+			return 0;
+		}
+		/* The rig names the response keyboard: only it answers, with kernel time stamps.
+		 * A device that cannot be opened is an error, never a quiet fall-back to SDL keys. */
+		struct evsrc *src = evsrc_open_device(s->rig.input_device, e, sizeof e);
+		if (!src) {
+			*err = xasprintf("%s: [input] device: %s", s->rig.path ? s->rig.path : "rig", e);
+			return -1;
+		}
+		s->response_device = xstrdup(evsrc_name(src));
+		s->response_usb = evsrc_usb(src) ? xstrdup(evsrc_usb(src)) : NULL;
+		s->resp = responder_evdev_new(keys, (int)s->proto.nchoices, src);
 	} else {
 		struct observer_spec spec;
 		if (strncmp(o->observer, "model", 5) ||
@@ -434,6 +448,8 @@ static int session_begin(struct run_session *s, const struct run_options *o, con
 	s->ss.timing_mode = xstrdup(mode);
 	free(s->ss.observer);
 	s->ss.observer = xstrdup(s->observer_text);
+	s->ss.response_device = s->response_device ? xstrdup(s->response_device) : NULL;
+	s->ss.response_usb = s->response_usb ? xstrdup(s->response_usb) : NULL;
 	s->ss.planned_trials = (int)s->plan.ntrials;
 	return store_session_begin(s->store, &s->ss, err);
 }
@@ -659,6 +675,8 @@ int run_close(struct run_session *s, char **err)
 	trialloop_destroy(s->tl);
 	display_texture_free(s->mask);
 	responder_destroy(s->resp);
+	free(s->response_device);
+	free(s->response_usb);
 	dclock_destroy(s->clock);
 	display_close(s->disp);
 	store_close(s->store);

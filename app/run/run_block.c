@@ -139,6 +139,19 @@ static enum flow event(struct run_session *s, const char *kind, const char *deta
 	return FLOW_ON;
 }
 
+/* The response device or the trigger port failed during a trial (trialloop_fault): an event in
+ * the session, and the block stops with the reason; every stored trial is kept. */
+static enum flow run_fault(struct run_session *s, char **err)
+{
+	const char *why = trialloop_fault(s->tl);
+	char *ignored = NULL;
+	store_event(s->store, s->ss.id, "fault", why, &ignored);
+	free(ignored);
+	*err = xasprintf("%s; the block stopped, every trial before this one is kept", why);
+	s->failed = true;
+	return FLOW_END;
+}
+
 /* The observer pressed Escape: the pause menu. */
 static enum flow observer_pause(struct blockrun *br, char **err)
 {
@@ -429,6 +442,8 @@ static enum flow trial_after(struct blockrun *br, char **err)
 		return fl;
 	}
 	enum trialloop_status is = trialloop_iti_finish(s->tl);
+	if (is == TRIALLOOP_FAULT)
+		return run_fault(s, err);
 	if (is == TRIALLOOP_STOP)
 		return FLOW_STOP;
 	if (is == TRIALLOOP_PAUSE)
@@ -477,6 +492,8 @@ static enum flow block_step(struct blockrun *br, char **err)
 	}
 	if (rc == TRIALLOOP_STOP)
 		return FLOW_STOP;
+	if (rc == TRIALLOOP_FAULT)
+		return run_fault(s, err);
 	/* Inter-trial interval from here: store first, then everything else. */
 	if (run_sink(s, &rec, err)) {
 		char *why = *err;

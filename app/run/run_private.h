@@ -43,6 +43,7 @@ struct run_session {
 	struct store_session ss;
 	char observer_text[160];
 	bool keyboard, paced;
+	char *response_device, *response_usb;   /* the [input] device opened, NULL = SDL keys */
 
 	struct display *disp;
 	struct dclock *clock;
