@@ -57,6 +57,13 @@ struct trialloop_config {
 	 * bookkeeping), excluding drawing, the on_frame hook and the flip. May be NULL. */
 	void (*on_work)(void *ctx, int64_t ns);
 	void *work_ctx;
+	/* Trigger codes (trigger.h), NULL = no port: onset_codes[truth] (nchoices entries; 0 = none)
+	 * is written right after the onset flip returns, and the time the write returned becomes
+	 * the record's trigger_ns; response_code (0 = none) when an answer counts. A failed write
+	 * abandons the trial (TRIALLOOP_FAULT). */
+	struct trigger *trigger;
+	const int *onset_codes;
+	int response_code;
 };
 
 struct trialloop_trial {

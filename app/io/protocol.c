@@ -22,6 +22,7 @@
 
 #include "inifile.h"
 #include "protocol_adaptive.h"
+#include "protocol_triggers.h"
 #include "suggest.h"
 
 struct protocol_ctx {
@@ -541,6 +542,7 @@ static const struct protocol_section *const sections[] = {
 	&display_section,
 	&block_section,
 	&protocol_adaptive_section,   /* "[adaptive NAME]", app/io/protocol_adaptive.c */
+	&protocol_triggers_section,   /* "[triggers]", app/io/protocol_triggers.c */
 };
 #define NSECTIONS (sizeof sections / sizeof sections[0])
 

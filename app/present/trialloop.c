@@ -16,6 +16,7 @@
 #include "display.h"
 #include "frames.h"
 #include "responder.h"
+#include "trigger.h"
 
 #define MAX_IGNORED 64
 
@@ -134,6 +135,18 @@ static int64_t flip(struct trialloop *tl, enum epoch e, int frame)
 	return t;
 }
 
+/* Writes trigger CODE (0: nothing) and the time the write returned to *T_NS (may be NULL).
+ * Returns false, with the trial marked as failed, when the port fails. */
+static bool send_code(struct trialloop *tl, int code, int64_t *t_ns)
+{
+	if (!tl->c.trigger || code <= 0)
+		return true;
+	if (!trigger_send(tl->c.trigger, code, t_ns, tl->fault, sizeof tl->fault))
+		return true;
+	tl->abandoned_fault = true;
+	return false;
+}
+
 /* Drains the responder after a flip. Returns false when the trial must be abandoned. */
 static bool poll_all(struct trialloop *tl)
 {
@@ -168,6 +181,8 @@ static bool poll_all(struct trialloop *tl)
 			rec->rt_ms = (double)(ev.t_ns - tl->onset_ns) / 1e6;
 			rec->key_sdl_ms = ev.sdl_ms;
 			rec->correct = ev.choice == tl->t->truth;
+			if (!send_code(tl, tl->c.response_code, NULL))
+				return false;
 		} else {
 			log_key(tl, ev.key, ev.t_ns, false);
 		}
@@ -216,6 +231,7 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 	rec->rt_clock = tl->c.resp->rt_clock;
 	rec->frames_planned = ef[EPOCH_STIMULUS];
 	rec->onset_ns = rec->offset_ns = 0;
+	rec->trigger_ns = 0;
 
 	struct responder_trial rt = {tl->c.nchoices, t->truth, t->has_level, t->level};
 	responder_begin(tl->c.resp, &rt);
@@ -234,6 +250,11 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 		draw(tl, EPOCH_STIMULUS);
 		int64_t ts = flip(tl, EPOCH_STIMULUS, f);
 		if (f == 0) {
+			/* The onset code goes out right after the flip returns, never before it. */
+			int code = tl->c.onset_codes && t->truth >= 0 && t->truth < tl->c.nchoices
+					   ? tl->c.onset_codes[t->truth] : 0;
+			if (!send_code(tl, code, &rec->trigger_ns))
+				return abandon(tl);
 			tl->onset_ns = ts;
 			responder_onset(tl->c.resp, ts);
 		}

@@ -35,6 +35,7 @@
 #include "stimlist_file.h"
 #include "store.h"
 #include "trialloop.h"
+#include "trigger.h"
 #include "version.h"
 
 #define MEASURE_FLIPS 120
@@ -263,11 +264,28 @@ static int make_mask(struct run_session *s, char **err)
 	return 0;
 }
 
-/* The presenter's parts: display, clock, responder, mask, trial loop and preloader. */
+/* The rig's trigger port, when it names one: opened before the session begins, so a missing
+ * port is an error before any trial. */
+static int open_trigger(struct run_session *s, char **err)
+{
+	if (!s->rig.trigger_port)
+		return 0;
+	char e[600];
+	s->trig = trigger_open(s->rig.trigger_port, s->rig.trigger_baud, e, sizeof e);
+	if (!s->trig) {
+		*err = xasprintf("%s: [trigger] port: %s", s->rig.path ? s->rig.path : "rig", e);
+		return -1;
+	}
+	return 0;
+}
+
+/* The presenter's parts: display, clock, responder, trigger port, mask, trial loop and
+ * preloader. */
 static int open_presenter(struct run_session *s, const struct run_options *o, struct diag_list *d,
 			  char **err)
 {
-	if (open_display(s, o, d, err) || open_clock(s, o, d, err) || open_responder(s, o, err))
+	if (open_display(s, o, d, err) || open_clock(s, o, d, err) || open_responder(s, o, err) ||
+	    open_trigger(s, err))
 		return -1;
 	s->paced = s->keyboard && !o->no_observer_screens;
 	if (make_mask(s, err))
@@ -278,6 +296,8 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		.fixation_px = s->proto.fixation_deg > 0 ? geom_deg_to_px(&s->rig, s->proto.fixation_deg, NULL) : 0,
 		.marker_corner = (int)s->rig.marker_corner, .marker_px = s->rig.marker_px,
 		.nchoices = (int)s->proto.nchoices, .mask = s->mask, .stop = &run_stop_flag,
+		.trigger = s->trig, .onset_codes = s->proto.triggers.onset_choice,
+		.response_code = s->proto.triggers.response,
 	};
 	memcpy(tc.epoch_frames, s->plan.epoch_frames, sizeof tc.epoch_frames);
 	if (tc.fixation_px < 0)
@@ -450,6 +470,7 @@ static int session_begin(struct run_session *s, const struct run_options *o, con
 	s->ss.observer = xstrdup(s->observer_text);
 	s->ss.response_device = s->response_device ? xstrdup(s->response_device) : NULL;
 	s->ss.response_usb = s->response_usb ? xstrdup(s->response_usb) : NULL;
+	s->ss.trigger_port = s->trig ? xstrdup(trigger_port(s->trig)) : NULL;
 	s->ss.planned_trials = (int)s->plan.ntrials;
 	return store_session_begin(s->store, &s->ss, err);
 }
@@ -673,6 +694,7 @@ int run_close(struct run_session *s, char **err)
 	}
 	preload_destroy(s->pre);
 	trialloop_destroy(s->tl);
+	trigger_close(s->trig);
 	display_texture_free(s->mask);
 	responder_destroy(s->resp);
 	free(s->response_device);

@@ -23,6 +23,7 @@
 #include "estimate.h"
 #include "preload.h"
 #include "trialloop.h"
+#include "trigger.h"
 
 /* A trial queued in this block run: a planned trial, or a repeat of one with a timing fault. */
 struct queued {
@@ -147,7 +148,23 @@ static enum flow run_fault(struct run_session *s, char **err)
 	char *ignored = NULL;
 	store_event(s->store, s->ss.id, "fault", why, &ignored);
 	free(ignored);
-	*err = xasprintf("%s; the block stopped, every trial before this one is kept", why);
+	*err = xasprintf("%s; the block stopped, every stored trial is kept", why);
+	s->failed = true;
+	return FLOW_END;
+}
+
+/* Writes a block's trigger CODE (0: none). A failing port stops the block with the reason. */
+static enum flow block_code(struct run_session *s, int code, char **err)
+{
+	if (!s->trig || code <= 0)
+		return FLOW_ON;
+	char e[400];
+	if (!trigger_send(s->trig, code, NULL, e, sizeof e))
+		return FLOW_ON;
+	char *ignored = NULL;
+	store_event(s->store, s->ss.id, "fault", e, &ignored);
+	free(ignored);
+	*err = xasprintf("%s; the block stopped, every stored trial is kept", e);
 	s->failed = true;
 	return FLOW_END;
 }
@@ -321,6 +338,8 @@ static enum flow block_begin(struct blockrun *br, char **err)
 	char *detail = xasprintf("%s%s", prb->name, br->repeat_run ? " (again)" : "");
 	enum flow fl = event(s, "block_start", detail, err);
 	free(detail);
+	if (fl == FLOW_ON)
+		fl = block_code(s, s->proto.triggers.block_start, err);
 	if (fl == FLOW_ON && run_measure_refresh(s, &br->sum.refresh, err)) {
 		fl = run_stop_requested() ? FLOW_STOP : FLOW_END;
 		if (fl == FLOW_END)
@@ -519,6 +538,8 @@ static enum run_block_result block_finish(struct blockrun *br, enum flow fl, cha
 	case FLOW_END: result = s->failed ? RUN_BLOCK_FAILED : RUN_BLOCK_ENDED; break;
 	case FLOW_STOP: result = RUN_BLOCK_INTERRUPTED; break;
 	}
+	if (!s->failed && block_code(s, s->proto.triggers.block_end, err) != FLOW_ON)
+		result = RUN_BLOCK_FAILED;
 	if (result == RUN_BLOCK_ENDED)
 		s->ended = true;
 	if (result == RUN_BLOCK_SKIPPED)

@@ -49,6 +49,7 @@ struct run_session {
 	struct dclock *clock;
 	struct responder *resp;
 	struct trialloop *tl;
+	struct trigger *trig;      /* the rig's [trigger] port, NULL = none */
 	struct preload *pre;
 	struct SDL_Texture *mask;
 	bool linearize;          /* images pass through LIN (the rig's calibration) when decoded */
