@@ -28,6 +28,7 @@
 #include "dclock.h"
 #include "display.h"
 #include "evsrc.h"
+#include "keywatch.h"
 #include "responder.h"
 #include "trialloop.h"
 
@@ -383,6 +384,65 @@ static void evsrc_testTrialRtFromKernelTime(void **state)
 	display_close(d);
 }
 
+struct pairs {
+	struct keywatch_press p[4];
+	int n;
+};
+
+static void on_pair(const struct keywatch_press *p, void *ctx)
+{
+	struct pairs *v = ctx;
+	if (v->n < 4)
+		v->p[v->n++] = *p;
+}
+
+static void push_sdl(SDL_Keycode sym)
+{
+	SDL_Event ev;
+	memset(&ev, 0, sizeof ev);
+	ev.type = SDL_KEYDOWN;
+	ev.key.keysym.sym = sym;
+	SDL_PushEvent(&ev);   /* SDL stamps it with its tick counter now */
+}
+
+/* timing --keys pairs a kernel press with SDL's event for the same key: a 'j' stamped by "the
+ * kernel" 3 ms before, and SDL's 'j' pushed later, give a lag equal to the time between them
+ * (SDL's stamp is whole ms of its tick counter: ±2 ms allowed);
+ * an SDL key the device never sent ('x', another keyboard) is not paired; Escape ends. */
+static void evsrc_testKeywatchPairs(void **state)
+{
+	(void)state;
+	struct display_opts o = {.headless = true, .width_px = 320, .height_px = 240};
+	char err[300];
+	struct display *d = display_open(&o, err, sizeof err);
+	assert_non_null(d);
+	int w;
+	struct evsrc *src = pipe_source(&w);
+	int64_t kt = (mono_ns() - 3000000) / 1000;
+	put(w, EV_KEY, KEY_J, 1, kt);
+	wait_seen(src, 1);
+	push_sdl(SDLK_x);
+	int64_t pushed = mono_ns();
+	push_sdl(SDLK_j);
+	int64_t pushed2 = mono_ns();
+	push_sdl(SDLK_ESCAPE);
+	struct pairs v = {.n = 0};
+	const char *lines[] = {"test"};
+	assert_int_equal(keywatch_run(d, src, 5, lines, 1, on_pair, &v, NULL), 1);
+	assert_int_equal(v.n, 1);
+	assert_string_equal(v.p[0].key, "j");
+	assert_int_equal(v.p[0].kernel_ns, kt * 1000);
+	/* SDL's stamp is the push, in whole ms of its ticks put on our clock (±1 ms each way). */
+	double lag = (double)(v.p[0].sdl_ns - v.p[0].kernel_ns) / 1e6;
+	double lo = (double)(pushed - kt * 1000) / 1e6, hi = (double)(pushed2 - kt * 1000) / 1e6;
+	fprintf(stderr, "# SDL stamp - kernel: %.3f ms (pushed %.3f to %.3f ms after)\n", lag, lo, hi);
+	assert_true(lag > lo - 2.0 && lag < hi + 2.0);
+	assert_true(v.p[0].seen_ns >= v.p[0].kernel_ns);
+	evsrc_close(src);
+	close(w);
+	display_close(d);
+}
+
 /* Through the kernel: a virtual keyboard made with uinput; a key-down written between two
  * CLOCK_MONOTONIC readings is stamped by the kernel between them. Needs a writable /dev/uinput. */
 static void evsrc_testUinputKernelStamp(void **state)
@@ -464,6 +524,7 @@ int main(void)
 		cmocka_unit_test(evsrc_testKeyNamesAsSdl),
 		cmocka_unit_test(evsrc_testRefusals),
 		cmocka_unit_test(evsrc_testTrialRtFromKernelTime),
+		cmocka_unit_test(evsrc_testKeywatchPairs),
 		cmocka_unit_test(evsrc_testUinputKernelStamp),
 	};
 	return cmocka_run_group_tests(tests, NULL, NULL);
