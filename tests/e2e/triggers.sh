@@ -53,6 +53,10 @@ check "check accepts the [triggers] section" "$TACHIST" check "$WORK/p.ini" --ri
 reader "$WORK/codes" "$WORK/port" 0
 port=$(cat "$WORK/port")
 { cat tests/data/good/rig.ini; printf '[trigger]\nport = %s\nbaud = 115200\n' "$port"; } >"$WORK/rig.ini"
+"$TACHIST" check "$WORK/p.ini" --rig "$WORK/rig.ini" >"$WORK/check.out" 2>&1
+expect_eq "check shows the port and each category's onset code" \
+  "triggers  $port at 115200 baud 8N1: onset ring=11 onset bar=10 onset cross=10 onset chevron=10 onset wedge=10 onset lattice=10 response=50 block_start=100 block_end=101" \
+  "$(grep '^triggers' "$WORK/check.out")"
 expect_exit "a session with a trigger port runs" 0 "$TACHIST" run "$WORK/p.ini" --subject T01 \
   --rig "$WORK/rig.ini" --db "$WORK/t.db" --headless --observer model:seed=4,rt=300 --seed 9
 sleep 0.3
