@@ -122,7 +122,7 @@ static void set_value(struct rig_ctx *c, const struct rig_key *k, const char *v,
 			err(c, line, "%s = %s is out of range (above %g, up to %g %s)", k->name, v,
 			    k->min, k->max, k->unit);
 		else
-			err(c, line, "%s = %s is out of range (%g to %g%s%s)", k->name, v, k->min,
+			err(c, line, "%s = %s is out of range (%.15g to %.15g%s%s)", k->name, v, k->min,
 			    k->max, k->unit ? " " : "", k->unit ? k->unit : "");
 		return;
 	}
