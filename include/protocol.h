@@ -76,6 +76,20 @@ struct protocol_block {
 	int instructions_line;
 };
 
+/* [triggers]: one code (1..255) per event for the rig's trigger port; 0 = no code. */
+struct protocol_triggers {
+	int onset;                              /* every stimulus onset (onset = CODE) */
+	int onset_choice[PROTOCOL_MAX_CHOICES]; /* the onset code of each category after parsing:
+						 * onset.CATEGORY = CODE, else onset */
+	int response, block_start, block_end;
+	int line;                               /* the section's header line, 0 = absent */
+	/* onset.CATEGORY keys as read, resolved against [categories] when the file ends */
+	char *category[PROTOCOL_MAX_CHOICES];
+	int category_code[PROTOCOL_MAX_CHOICES], category_line[PROTOCOL_MAX_CHOICES];
+	size_t ncategory;
+	int onset_line, response_line, block_start_line, block_end_line;
+};
+
 struct protocol {
 	char *path;                    /* as given */
 	char *dir;                     /* folder of the file, for relative paths */
@@ -107,6 +121,7 @@ struct protocol {
 	int size_line;                 /* line of size_deg */
 	int background_line, background_cd_line, linearize_line;
 	int name_line, mask_image_line, break_line;
+	struct protocol_triggers triggers;   /* protocol_triggers.c */
 };
 
 /* Index of CATEGORY among the choices, or -1. */

@@ -26,6 +26,10 @@ struct rig {
 	int marker_px;     /* side of the square marker patch */
 	struct lum_cal *lum; /* the [luminance] calibration (owned), NULL when the rig has none */
 	int max_image_side; /* widest or tallest image file accepted, px (default: image.h's) */
+	char *input_device; /* [input] device: the response keyboard (event device path or name),
+			     * NULL = keys through SDL (frame-stamped) */
+	char *trigger_port; /* [trigger] port: serial device for trigger codes, NULL = none */
+	int trigger_baud;   /* [trigger] baud, default 115200 */
 };
 
 #endif

@@ -77,6 +77,9 @@ struct store_session {
 	bool linearized;           /* images went through the inverse of the display's curve */
 	int design_position;       /* counterbalancing: the subject's position, 0 = none */
 	char *block_order, *key_mapping;   /* what the design gave (NULL without one) */
+	char *response_device;     /* the response keyboard's name; NULL = SDL keys */
+	char *response_usb;        /* its USB "vvvv:pppp", NULL when unknown */
+	char *trigger_port;        /* serial port of the trigger codes, NULL = none */
 };
 
 /* Opens or creates PATH and brings its schema up to date. Returns 0 and *OUT, or -1 and *ERR
@@ -197,7 +200,9 @@ struct store_trial {
 	bool has_level_requested;
 	double level_requested;
 	int repeat_of;              /* -1, or the trial this one repeats */
-	const char *rt_clock;       /* what stamped the response: "frame" (SDL, after a flip) */
+	const char *rt_clock;       /* what stamped the response: "frame" (SDL, after a flip),
+				     * "kernel" (the input device) or "model" */
+	int64_t trigger_ns;         /* onset trigger written, 0 = none */
 #ifdef TACHIST_TEST_COLUMN
 	int test_column;            /* a column that exists only in the column-table test build */
 #endif

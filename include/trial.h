@@ -25,8 +25,9 @@ struct trial_record {
 	bool timed_out;
 	bool anticipation;      /* a choice key was pressed before the response could count */
 	bool has_rt;
-	double rt_ms;           /* from onset flip to the key's poll time */
+	double rt_ms;           /* from onset flip to the key's time (see rt_clock) */
 	int64_t key_sdl_ms;     /* SDL's own millisecond stamp of the key event, 0 when none */
+	const char *rt_clock;   /* what stamped the response: "frame", "kernel" or "model" (static) */
 
 	int frames_planned;     /* stimulus frames planned */
 	int frames_actual;      /* stimulus frames actually shown, from flip times */
@@ -34,6 +35,7 @@ struct trial_record {
 	bool timing_ok;         /* exposure exact and no drop during stimulus epochs */
 	int64_t onset_ns, offset_ns;   /* stimulus onset and offset flips */
 	int64_t start_ns;       /* first flip of the trial */
+	int64_t trigger_ns;     /* the onset trigger code's write returned; 0 = no trigger port */
 
 	const int64_t *flips;   /* every flip time of the trial (borrowed; valid during the call) */
 	size_t nflips;

@@ -62,6 +62,13 @@ struct trialloop_config {
 	 * bookkeeping), excluding drawing, the on_frame hook and the flip. May be NULL. */
 	void (*on_work)(void *ctx, int64_t ns);
 	void *work_ctx;
+	/* Trigger codes (trigger.h), NULL = no port: onset_codes[truth] (nchoices entries; 0 = none)
+	 * is written right after the onset flip returns, and the time the write returned becomes
+	 * the record's trigger_ns; response_code (0 = none) when an answer counts. A failed write
+	 * abandons the trial (TRIALLOOP_FAULT). */
+	struct trigger *trigger;
+	const int *onset_codes;
+	int response_code;
 };
 
 struct trialloop_trial {
@@ -72,7 +79,9 @@ struct trialloop_trial {
 	bool feedback;
 };
 
-enum trialloop_status { TRIALLOOP_DONE, TRIALLOOP_PAUSE, TRIALLOOP_STOP };
+/* FAULT: the response device or the trigger port failed; the trial is abandoned and
+ * trialloop_fault says why. */
+enum trialloop_status { TRIALLOOP_DONE, TRIALLOOP_PAUSE, TRIALLOOP_STOP, TRIALLOOP_FAULT };
 
 struct trialloop_key {
 	char key[24];
@@ -93,11 +102,14 @@ void trialloop_set_period(struct trialloop *tl, int64_t period_ns);
  * the trial abandoned. */
 enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop_trial *t,
 				    struct trial_record *rec);
+/* Why the last trialloop_run returned TRIALLOOP_FAULT ("" otherwise). */
+const char *trialloop_fault(const struct trialloop *tl);
 /* Keys ignored or anticipated in the last trial. */
 const struct trialloop_key *trialloop_ignored(const struct trialloop *tl, size_t *n);
 
 /* Flips the rest of the ITI begun by the last trialloop_run. Returns TRIALLOOP_DONE, or
- * PAUSE/STOP when Escape, a window close or the stop flag came during it. */
+ * PAUSE/STOP when Escape, a window close or the stop flag came during it, or FAULT when the
+ * response device failed at the end of the (complete, storable) trial. */
 enum trialloop_status trialloop_iti_finish(struct trialloop *tl);
 
 /* A text screen (LINES) held until one of KEYS is pressed (returns its index), TICK returns

@@ -91,6 +91,34 @@ static void json_luminance(cJSON *j, const struct protocol *p, const struct rig 
 	cJSON_AddBoolToObject(o, "linearize", p->linearize);
 }
 
+/* What stamps the answers and where trigger codes go (docs/response-timing.md). */
+static void print_input_trigger(const struct protocol *p, const struct rig *r)
+{
+	if (r->input_device)
+		printf("responses %s (kernel-stamped; only it answers)\n", r->input_device);
+	else
+		printf("responses any keyboard through SDL (frame-stamped)\n");
+	const struct protocol_triggers *t = &p->triggers;
+	if (!r->trigger_port) {
+		if (t->line)
+			printf("triggers  none: the rig names no [trigger] port, [triggers] is not used\n");
+		return;
+	}
+	printf("triggers  %s at %d baud 8N1:", r->trigger_port, r->trigger_baud);
+	if (!t->line)
+		printf(" no codes (the protocol has no [triggers])");
+	for (size_t i = 0; i < p->nchoices && t->line; i++)
+		if (t->onset_choice[i])
+			printf(" onset %s=%d", p->choices[i].category, t->onset_choice[i]);
+	if (t->response)
+		printf(" response=%d", t->response);
+	if (t->block_start)
+		printf(" block_start=%d", t->block_start);
+	if (t->block_end)
+		printf(" block_end=%d", t->block_end);
+	printf("\n");
+}
+
 static void print_text(const struct protocol *p, const struct rig *r, const struct stimlist *l,
 		       const struct plan *pl)
 {
@@ -103,6 +131,7 @@ static void print_text(const struct protocol *p, const struct rig *r, const stru
 	printf("stimulus  %g deg -> %d px = %.3f deg\n", p->size_deg, pl->stim_px,
 	       pl->stim_deg_actual);
 	print_luminance(p, r);
+	print_input_trigger(p, r);
 	printf("categories");
 	for (size_t i = 0; i < p->nchoices; i++)
 		printf(" %s=%s", p->choices[i].category, p->choices[i].key);

@@ -1,10 +1,13 @@
 /* cmd_timing — `tachist timing`: flips an empty frame N times on the observer's display and
  * reports the frame-interval distribution (a text histogram), the estimated refresh rate against
  * the rig's nominal one, dropped frames, and whether SDL_RenderPresent actually blocks (waits for
- * the vertical blank) — without which frame times mean nothing. */
+ * the vertical blank) — without which frame times mean nothing. With --keys: the input devices
+ * this user can read, and on the rig's [input] device each press's kernel time beside SDL's time
+ * of the same press, with the distribution of that lag (keywatch.c). */
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include <gsl/gsl_sort.h>
 #include <gsl/gsl_statistics_double.h>
@@ -12,7 +15,9 @@
 #include "cmd.h"
 #include "dclock.h"
 #include "display.h"
+#include "evsrc.h"
 #include "frames.h"
+#include "keywatch.h"
 #include "rig_file.h"
 
 /* A bar of '#' for COUNT out of TOP, at most 50 wide, in BAR (64 bytes). */
@@ -24,11 +29,12 @@ static const char *hist_bar(char *bar, size_t count, size_t top)
 	return bar;
 }
 
-enum { O_RIG, O_FRAMES, O_HEADLESS };
+enum { O_RIG, O_FRAMES, O_HEADLESS, O_KEYS };
 const struct opts_row cmd_timing_opts[] = {
 	[O_RIG] = {"rig", "FILE", "the rig profile with the nominal refresh and display"},
 	[O_FRAMES] = {"frames", "N", "frames to flip, 20 to 100000 (default 300)"},
 	[O_HEADLESS] = {"headless", NULL, "no display: measure the virtual clock (a self-test)"},
+	[O_KEYS] = {"keys", NULL, "list the input devices; watch the rig's [input] device's presses"},
 	OPTS_END,
 };
 
@@ -86,11 +92,138 @@ static bool present_blocks(double *inside, size_t n, const struct frames_measure
 	return blocks;
 }
 
+/* Prints the input devices under /dev/input, and how to read them without root. */
+static void list_devices(void)
+{
+	struct evsrc_device *v;
+	size_t n;
+	if (evsrc_list(&v, &n)) {
+		printf("input devices: none (this machine has no /dev/input)\n");
+		return;
+	}
+	int unreadable = 0;
+	printf("input devices (/dev/input):\n");
+	for (size_t i = 0; i < n; i++) {
+		const struct evsrc_device *x = &v[i];
+		if (!x->readable) {
+			printf("  %-20s no read access\n", x->path);
+			unreadable++;
+			continue;
+		}
+		printf("  %-20s %-9s %-9s \"%s\"\n", x->path, x->keyboard ? "keyboard" : "other",
+		       x->usb[0] ? x->usb : "-", x->name);
+		if (x->by_id[0])
+			printf("  %-20s %s\n", "", x->by_id);
+	}
+	if (!n)
+		printf("  (none)\n");
+	free(v);
+	if (unreadable)
+		printf("\n%d device%s cannot be read by this user. To read input devices, add yourself to "
+		       "the 'input' group\n(sudo usermod -aG input $USER, then log in again), or give the "
+		       "response keyboard a udev rule\n(docs/response-timing.md). Never run tachist as "
+		       "root for this.\n", unreadable, unreadable == 1 ? "" : "s");
+	if (geteuid() == 0)
+		printf("\nwarning: running as root reads every device; sessions must not run as root\n");
+}
+
+struct lagstats {
+	double *sdl, *seen;   /* ms, SDL's stamp − kernel, and our read of SDL's event − kernel */
+	size_t n;
+	int64_t t0;
+};
+
+static void print_press(const struct keywatch_press *p, void *ctx)
+{
+	struct lagstats *l = ctx;
+	if (!l->t0)
+		l->t0 = p->kernel_ns;
+	double sdl = (double)(p->sdl_ns - p->kernel_ns) / 1e6;
+	double seen = (double)(p->seen_ns - p->kernel_ns) / 1e6;
+	l->sdl[l->n] = sdl;
+	l->seen[l->n++] = seen;
+	printf("%4zu  %-10s %12.6f s %+9.3f ms %+9.3f ms\n", l->n, p->key,
+	       (double)(p->kernel_ns - l->t0) / 1e9, sdl, seen);
+	fflush(stdout);
+}
+
+static void print_lag(const char *what, double *v, size_t n)
+{
+	gsl_sort(v, 1, n);
+	printf("  %-32s median %+8.3f ms, 90%% %+8.3f ms, min %+8.3f, max %+8.3f\n", what,
+	       gsl_stats_median_from_sorted_data(v, 1, n),
+	       gsl_stats_quantile_from_sorted_data(v, 1, n, 0.9), v[0], v[n - 1]);
+}
+
+enum { KEY_PRESSES = 20 };
+
+/* timing --keys: the device list, then the rig's [input] device watched for KEY_PRESSES
+ * presses on the observer's display. */
+static int timing_keys(const struct rig *rig, bool headless)
+{
+	list_devices();
+	if (!rig->input_device) {
+		printf("\nThe rig names no response device: sessions read keys through SDL after each "
+		       "flip (frame-stamped).\nName one in the rig's [input] section "
+		       "(device = /dev/input/by-id/...) to watch its presses here.\n");
+		return EXIT_OK;
+	}
+	char e[700];
+	struct evsrc *src = evsrc_open_device(rig->input_device, e, sizeof e);
+	if (!src) {
+		fprintf(stderr, "tachist: %s: [input] device: %s\n", rig->path ? rig->path : "rig", e);
+		return EXIT_PROBLEMS;
+	}
+	printf("\nresponse device: \"%s\"%s%s (%s)\n", evsrc_name(src), evsrc_usb(src) ? " USB " : "",
+	       evsrc_usb(src) ? evsrc_usb(src) : "", rig->input_device);
+	if (headless) {
+		printf("watching presses needs the observer's display (SDL delivers keys to a focused "
+		       "window); run without --headless\n");
+		evsrc_close(src);
+		return EXIT_OK;
+	}
+	char err[512];
+	struct display_opts o = {.vsync = false, .display_index = rig->display,
+				 .width_px = rig->width_px, .height_px = rig->height_px,
+				 .background = 0, .title = "tachist timing --keys"};
+	struct display *disp = display_open(&o, err, sizeof err);
+	if (!disp) {
+		fprintf(stderr, "tachist: %s\n", err);
+		evsrc_close(src);
+		return EXIT_PROBLEMS;
+	}
+	printf("press keys on it (%d presses; Escape ends)\n\n", KEY_PRESSES);
+	printf("   #  key          kernel time    SDL stamp  SDL read\n");
+	printf("                               (− kernel)  (− kernel)\n");
+	struct lagstats l = {.sdl = xcalloc(KEY_PRESSES, sizeof(double)),
+			     .seen = xcalloc(KEY_PRESSES, sizeof(double))};
+	static const char *const lines[] = {"Press keys on the response device", "",
+					    "Escape ends"};
+	int got = keywatch_run(disp, src, KEY_PRESSES, lines, 3, print_press, &l, NULL);
+	int code = EXIT_OK;
+	if (got < 0) {
+		fprintf(stderr, "tachist: the response device stopped: %s\n", evsrc_error(src));
+		code = EXIT_PROBLEMS;
+	}
+	if (l.n >= 2) {
+		printf("\nlag behind the kernel's stamp over %zu presses:\n", l.n);
+		print_lag("SDL's own stamp (1 ms ticks)", l.sdl, l.n);
+		print_lag("SDL's event read (polled each ms)", l.seen, l.n);
+		printf("  (a trial loop that reads SDL after each flip adds up to one refresh period "
+		       "more; sessions with [input] use the kernel's stamp)\n");
+	}
+	free(l.sdl);
+	free(l.seen);
+	display_close(disp);
+	evsrc_close(src);
+	return code;
+}
+
 int cmd_timing(int argc, char **argv)
 {
 	const char *rig_arg = NULL, *v;
 	unsigned long long nframes = 300;
-	bool headless = false;
+	bool headless = false, keys = false;
 	struct opts p;
 	opts_begin(&p, "timing", cmd_timing_opts, argc, argv);
 	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
@@ -102,6 +235,7 @@ int cmd_timing(int argc, char **argv)
 						  "100000 (got '%s')", v);
 			break;
 		case O_HEADLESS: headless = true; break;
+		case O_KEYS: keys = true; break;
 		case OPTS_ARG: return opts_usage("timing", "unexpected argument '%s'", v);
 		default: return EXIT_USAGE;
 		}
@@ -120,6 +254,11 @@ int cmd_timing(int argc, char **argv)
 	free(rigpath);
 	if (rc)
 		return EXIT_PROBLEMS;
+	if (keys) {
+		int krc = timing_keys(&rig, headless);
+		rig_clear(&rig);
+		return krc;
+	}
 	char err[512];
 	struct display_opts o = {.headless = headless, .vsync = true, .display_index = rig.display,
 				 .width_px = rig.width_px, .height_px = rig.height_px,

@@ -42,10 +42,11 @@ static const struct cmd commands[] = {
 	 "2%) differs from the rig's is refused unless --accept-rig-mismatch.",
 	 cmd_run_opts, cmd_run},
 	{"timing", "measure the display's refresh",
-	 "tachist timing [--rig FILE] [--frames N] [--headless]\n",
+	 "tachist timing [--rig FILE] [--frames N] [--headless] [--keys]\n",
 	 "Flips empty frames on the observer's display and prints the frame-interval histogram, the "
 	 "estimated refresh rate against the rig's, dropped frames, and whether presenting a frame "
-	 "waits for the vertical blank.",
+	 "waits for the vertical blank. --keys lists the input devices this user can read and, on "
+	 "the rig's [input] device, shows each press's kernel time beside SDL's and that lag.",
 	 cmd_timing_opts, cmd_timing},
 	{"sessions", "list the sessions in a database",
 	 "tachist sessions [--db FILE] [--subject ID] [--json]\n",

@@ -24,6 +24,7 @@
 #include "inifile.h"
 #include "protocol_adaptive.h"
 #include "protocol_screens.h"
+#include "protocol_triggers.h"
 #include "suggest.h"
 
 struct protocol_ctx {
@@ -565,6 +566,7 @@ static const struct protocol_section *const sections[] = {
 	&protocol_adaptive_section,   /* "[adaptive NAME]", app/io/protocol_adaptive.c */
 	&protocol_screens_section,    /* "[screens]", app/io/protocol_screens.c */
 	&protocol_counterbalance_section,   /* "[counterbalance]", app/io/protocol_screens.c */
+	&protocol_triggers_section,   /* "[triggers]", app/io/protocol_triggers.c */
 };
 #define NSECTIONS (sizeof sections / sizeof sections[0])
 

@@ -4,6 +4,8 @@
  *             max_image_side
  *   [marker]  corner (none|top-left|top-right|bottom-left|bottom-right), size_px
  *   [luminance] the photometer calibration, read by rig_lum.c
+ *   [input]   device (the response keyboard: an event device path or a device name)
+ *   [trigger] port (a serial device for trigger codes), baud
  *
  * A table of keys (type, range, place in struct rig) drives the parse; every problem becomes a
  * FILE:LINE diagnostic and parsing goes on. Documented in docs/files.md ("Rig profile"). */
@@ -49,13 +51,16 @@ static const struct rig_key keys[] = {
 	{"marker", "corner", RT_CORNER, offsetof(struct rig, marker_corner), 0, 0, 0, 0, NULL},
 	{"marker", "size_px", RT_INT, offsetof(struct rig, marker_px), 1, 500, 0, 0, "px"},
 	{"screen", "max_image_side", RT_INT, offsetof(struct rig, max_image_side), 16, 65535, 0, 0, "px"},
+	{"input", "device", RT_TEXT, offsetof(struct rig, input_device), 0, 0, 0, 0, NULL},
+	{"trigger", "port", RT_TEXT, offsetof(struct rig, trigger_port), 0, 0, 0, 0, NULL},
+	{"trigger", "baud", RT_INT, offsetof(struct rig, trigger_baud), 1200, 4000000, 0, 0, "baud"},
 };
 #define NKEYS (sizeof keys / sizeof keys[0])
 _Static_assert(NKEYS > K_SIZE_PX, "keys[] rows K_CORNER and K_SIZE_PX");
 
 static const char *const corners[] = {"none", "top-left", "top-right", "bottom-left",
 				      "bottom-right"};
-static const char *const section_names[] = {"screen", "marker", "luminance"};
+static const char *const section_names[] = {"screen", "marker", "luminance", "input", "trigger"};
 #define NSECTIONS (sizeof section_names / sizeof section_names[0])
 
 struct rig_ctx {
@@ -118,7 +123,7 @@ static void set_value(struct rig_ctx *c, const struct rig_key *k, const char *v,
 			err(c, line, "%s = %s is out of range (above %g, up to %g %s)", k->name, v,
 			    k->min, k->max, k->unit);
 		else
-			err(c, line, "%s = %s is out of range (%g to %g%s%s)", k->name, v, k->min,
+			err(c, line, "%s = %s is out of range (%.15g to %.15g%s%s)", k->name, v, k->min,
 			    k->max, k->unit ? " " : "", k->unit ? k->unit : "");
 		return;
 	}
@@ -154,7 +159,7 @@ static int on_entry(void *user, const char *section, const char *key, const char
 		if (near)
 			err(c, line, "unknown section [%s]; did you mean [%s]?", section, near);
 		else
-			err(c, line, "unknown section [%s] (a rig has [screen], [marker] and [luminance])", section);
+			err(c, line, "unknown section [%s] (a rig has [screen], [marker], [luminance], [input] and [trigger])", section);
 		return 0;
 	}
 	if (c->outside) {
@@ -199,6 +204,7 @@ int rig_parse(const char *path, const char *text, struct rig *r, struct diag_lis
 	r->path = path ? xstrdup(path) : NULL;
 	r->text = xstrdup(text);
 	r->marker_px = 40;
+	r->trigger_baud = 115200;
 	r->max_image_side = (int)IMAGE_MAX_SIDE_DEFAULT;
 	size_t errors0 = diag_count(d, DIAG_ERROR);
 	struct rig_ctx c = {.r = r, .file = path, .d = d, .outside = 1};
@@ -257,5 +263,7 @@ void rig_clear(struct rig *r)
 	free(r->text);
 	free(r->name);
 	free(r->lum);
+	free(r->input_device);
+	free(r->trigger_port);
 	memset(r, 0, sizeof *r);
 }

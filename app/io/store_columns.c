@@ -102,6 +102,13 @@ static const struct store_column session_cols[] = {
 	 SS(block_order), NONE, "Blocks in the order the design gave this session", NULL},
 	{"key_mapping", "key_mapping", STORE_TEXT, STORE_IF_ZERO, STORE_COL_META, "",
 	 SS(key_mapping), NONE, "category=key pairs the design gave this session", NULL},
+	{"response_device", "response_device", STORE_TEXT, STORE_IF_ZERO, STORE_COL_META, "",
+	 SS(response_device), NONE, "Name of the input device whose key-downs were the answers, "
+	 "stamped by the kernel (missing: keys through SDL, frame-stamped)", NULL},
+	{"response_usb", "response_usb", STORE_TEXT, STORE_IF_ZERO, STORE_COL_META, "",
+	 SS(response_usb), NONE, "USB vendor:product id of the response device, when it is one", NULL},
+	{"trigger_port", "trigger_port", STORE_TEXT, STORE_IF_ZERO, STORE_COL_META, "",
+	 SS(trigger_port), NONE, "Serial port the trigger codes were written to", NULL},
 };
 
 static const struct store_column trial_cols[] = {
@@ -145,8 +152,9 @@ static const struct store_column trial_cols[] = {
 	{"rt_ms", "rt_ms", STORE_REAL, STORE_IF_UNFLAGGED, 0, "", TR(rt_ms), TR(has_rt),
 	 "Reaction time from the stimulus onset flip to the key press", "ms"},
 	{"rt_clock", "rt_clock", STORE_TEXT, STORE_IF_ZERO, 0, "", TR(rt_clock), NONE,
-	 "What stamped the key press: frame (read after a flip, so quantised to the refresh) or "
-	 "kernel (the input device's own event time)", NULL},
+	 "What stamped the key press: frame (read after a flip, so quantised to the refresh), "
+	 "kernel (the input device's own event time) or model (the model observer's drawn time)",
+	 NULL},
 	{"timed_out", "timed_out", STORE_BOOL, STORE_ALWAYS, 0, "NOT NULL DEFAULT 0",
 	 TR(timed_out), NONE, "1 when the response window closed without an answer", NULL},
 	{"anticipation", "anticipation", STORE_BOOL, STORE_ALWAYS, 0, "NOT NULL DEFAULT 0",
@@ -164,6 +172,8 @@ static const struct store_column trial_cols[] = {
 	 "1 when the exposure was exact and no frame dropped during the stimulus epochs", NULL},
 	{"onset_ns", "onset_ns", STORE_INT64, STORE_ALWAYS, 0, "", TR(onset_ns), NONE,
 	 "Stimulus onset flip on the session's monotonic clock", "ns"},
+	{"trigger_ns", NULL, STORE_INT64, STORE_IF_ZERO, 0, "", TR(trigger_ns), NONE,
+	 "When the onset trigger code's write call returned (CLOCK_MONOTONIC)", "ns"},
 	{"offset_ns", NULL, STORE_INT64, STORE_ALWAYS, 0, "", TR(offset_ns), NONE,
 	 "Stimulus offset flip on the session's monotonic clock", "ns"},
 	{"start_ns", NULL, STORE_INT64, STORE_ALWAYS, 0, "", TR(start_ns), NONE,
@@ -347,7 +357,7 @@ void store_trial_from_record(struct store_trial *out, const char *session_id,
 	out->correct = t->correct >= 0 ? t->correct : -1;
 	out->has_rt = t->has_rt;
 	out->rt_ms = t->rt_ms;
-	out->rt_clock = "frame";   /* keys are read after a flip (SDL events) */
+	out->rt_clock = t->rt_clock ? t->rt_clock : "frame";
 	out->timed_out = t->timed_out;
 	out->anticipation = t->anticipation;
 	out->key_sdl_ms = t->key_sdl_ms;
@@ -356,6 +366,7 @@ void store_trial_from_record(struct store_trial *out, const char *session_id,
 	out->dropped_frames = t->dropped_frames;
 	out->timing_ok = t->timing_ok;
 	out->onset_ns = t->onset_ns;
+	out->trigger_ns = t->trigger_ns;
 	out->offset_ns = t->offset_ns;
 	out->start_ns = t->start_ns;
 	out->staircase = t->staircase >= 0 ? t->staircase : -1;

@@ -12,6 +12,7 @@
 #include <SDL.h>
 
 #include "diag.h"
+#include "evsrc.h"
 #include "observer.h"
 
 #define MAX_KEYS 32
@@ -66,7 +67,7 @@ static int kb_poll(struct responder *r, int64_t now, struct responder_event *ev)
 
 static void kb_destroy(struct responder *r) { free(r); }
 
-static const struct responder_ops kb_ops = {kb_begin, kb_onset, kb_poll, kb_destroy};
+static const struct responder_ops kb_ops = {kb_begin, kb_onset, kb_poll, kb_destroy, NULL};
 
 struct responder *responder_keyboard_new(const char *const *keys, int n)
 {
@@ -74,6 +75,7 @@ struct responder *responder_keyboard_new(const char *const *keys, int n)
 		return NULL;
 	struct keyboard *k = xcalloc(1, sizeof *k);
 	k->base.ops = &kb_ops;
+	k->base.rt_clock = "frame";
 	k->n = n;
 	for (int i = 0; i < n; i++) {
 		snprintf(k->keys[i], sizeof k->keys[i], "%s", keys[i]);
@@ -81,6 +83,103 @@ struct responder *responder_keyboard_new(const char *const *keys, int n)
 			*p = (char)tolower((unsigned char)*p);
 	}
 	return &k->base;
+}
+
+/* ---- keyboard on an input device (kernel time stamps) ---- */
+
+struct evkb {
+	struct responder base;
+	struct evsrc *src;
+	char keys[MAX_KEYS][24];
+	int n;
+	bool lost;
+};
+
+/* Keys queued before the trial began were pressed in the last inter-trial interval (the SDL
+ * keyboard drains those there too): drop them. */
+static void ev_begin(struct responder *r, const struct responder_trial *t)
+{
+	(void)t;
+	struct evkb *k = (struct evkb *)r;
+	struct evsrc_key key;
+	while (evsrc_next(k->src, &key) == 1)
+		;
+}
+
+static int ev_poll(struct responder *r, int64_t now, struct responder_event *ev)
+{
+	struct evkb *k = (struct evkb *)r;
+	memset(ev, 0, sizeof *ev);
+	ev->choice = -1;
+	/* SDL: only Escape and a window close; key presses there are the experimenter's. */
+	enum responder_kind sk;
+	while ((sk = next_sdl(ev->key, sizeof ev->key, &ev->sdl_ms)) == RESP_KEY)
+		;
+	if (sk != RESP_NONE) {
+		ev->kind = sk;
+		ev->key[0] = '\0';
+		ev->t_ns = now;
+		return 1;
+	}
+	ev->sdl_ms = 0;
+	struct evsrc_key key;
+	int rc = evsrc_next(k->src, &key);
+	if (rc < 0) {
+		if (k->lost)
+			return 0;
+		k->lost = true;
+		ev->kind = RESP_LOST;
+		ev->t_ns = now;
+		return 1;
+	}
+	if (rc == 0)
+		return 0;
+	ev->kind = RESP_KEY;
+	ev->t_ns = key.t_ns;
+	evsrc_key_name(key.code, ev->key, sizeof ev->key);
+	for (int i = 0; i < k->n; i++)
+		if (!strcmp(ev->key, k->keys[i]))
+			ev->choice = i;
+	return 1;
+}
+
+static void ev_destroy(struct responder *r)
+{
+	struct evkb *k = (struct evkb *)r;
+	evsrc_close(k->src);
+	free(k);
+}
+
+static const char *ev_error(const struct responder *r)
+{
+	const struct evkb *k = (const struct evkb *)r;
+	return k->lost ? evsrc_error(k->src) : "";
+}
+
+static const struct responder_ops ev_ops = {ev_begin, kb_onset, ev_poll, ev_destroy, ev_error};
+
+struct responder *responder_evdev_new(const char *const *keys, int n, struct evsrc *src)
+{
+	if (n < 1 || n > MAX_KEYS || !src) {
+		evsrc_close(src);
+		return NULL;
+	}
+	struct evkb *k = xcalloc(1, sizeof *k);
+	k->base.ops = &ev_ops;
+	k->base.rt_clock = "kernel";
+	k->src = src;
+	k->n = n;
+	for (int i = 0; i < n; i++) {
+		snprintf(k->keys[i], sizeof k->keys[i], "%s", keys[i]);
+		for (char *p = k->keys[i]; *p; p++)
+			*p = (char)tolower((unsigned char)*p);
+	}
+	return &k->base;
+}
+
+const char *responder_error(const struct responder *r)
+{
+	return r->ops->error ? r->ops->error(r) : "";
 }
 
 /* ---- model observer ---- */
@@ -138,13 +237,15 @@ static void model_destroy(struct responder *r)
 	free(m);
 }
 
-static const struct responder_ops model_ops = {model_begin, model_onset, model_poll, model_destroy};
+static const struct responder_ops model_ops = {model_begin, model_onset, model_poll, model_destroy,
+					       NULL};
 
 struct responder *responder_model_new(const struct observer_spec *spec)
 {
 	struct model *m = xcalloc(1, sizeof *m);
 	m->base.ops = &model_ops;
 	m->base.is_model = true;
+	m->base.rt_clock = "model";
 	m->obs = observer_new(spec);
 	return &m->base;
 }

@@ -16,6 +16,7 @@
 #include "display.h"
 #include "frames.h"
 #include "responder.h"
+#include "trigger.h"
 
 #define MAX_IGNORED 64
 
@@ -31,7 +32,8 @@ struct trialloop {
 	const struct trialloop_trial *t;
 	struct trial_record *rec;
 	int64_t onset_ns;
-	bool abandoned_pause, abandoned_stop;
+	bool abandoned_pause, abandoned_stop, abandoned_fault;
+	char fault[400];               /* why abandoned_fault */
 	bool window_open;              /* answers still count */
 	enum trialloop_status pending; /* Escape/stop that came with the first ITI flip */
 	int64_t prof_mark, prof_work;  /* on_work: start of the current own-work stretch, its sum */
@@ -140,6 +142,18 @@ static int64_t flip(struct trialloop *tl, enum epoch e, int frame)
 	return t;
 }
 
+/* Writes trigger CODE (0: nothing) and the time the write returned to *T_NS (may be NULL).
+ * Returns false, with the trial marked as failed, when the port fails. */
+static bool send_code(struct trialloop *tl, int code, int64_t *t_ns)
+{
+	if (!tl->c.trigger || code <= 0)
+		return true;
+	if (!trigger_send(tl->c.trigger, code, t_ns, tl->fault, sizeof tl->fault))
+		return true;
+	tl->abandoned_fault = true;
+	return false;
+}
+
 /* Drains the responder after a flip. Returns false when the trial must be abandoned. */
 static bool poll_all(struct trialloop *tl)
 {
@@ -155,6 +169,12 @@ static bool poll_all(struct trialloop *tl)
 			tl->abandoned_stop = true;
 			return false;
 		}
+		if (ev.kind == RESP_LOST) {
+			tl->abandoned_fault = true;
+			snprintf(tl->fault, sizeof tl->fault, "the response device stopped: %s",
+				 responder_error(tl->c.resp));
+			return false;
+		}
 		if (ev.kind != RESP_KEY)
 			continue;
 		bool before = !tl->onset_ns || ev.t_ns < tl->onset_ns;
@@ -168,6 +188,8 @@ static bool poll_all(struct trialloop *tl)
 			rec->rt_ms = (double)(ev.t_ns - tl->onset_ns) / 1e6;
 			rec->key_sdl_ms = ev.sdl_ms;
 			rec->correct = ev.choice == tl->t->truth;
+			if (!send_code(tl, tl->c.response_code, NULL))
+				return false;
 		} else {
 			log_key(tl, ev.key, ev.t_ns, false);
 		}
@@ -181,7 +203,14 @@ static bool poll_all(struct trialloop *tl)
 
 static enum trialloop_status abandon(struct trialloop *tl)
 {
+	if (tl->abandoned_fault)
+		return TRIALLOOP_FAULT;
 	return tl->abandoned_stop ? TRIALLOOP_STOP : TRIALLOOP_PAUSE;
+}
+
+const char *trialloop_fault(const struct trialloop *tl)
+{
+	return tl->abandoned_fault ? tl->fault : "";
 }
 
 enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop_trial *t,
@@ -193,7 +222,8 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 	tl->nflips = 0;
 	tl->nignored = 0;
 	tl->onset_ns = 0;
-	tl->abandoned_pause = tl->abandoned_stop = false;
+	tl->abandoned_pause = tl->abandoned_stop = tl->abandoned_fault = false;
+	tl->fault[0] = '\0';
 	tl->window_open = true;
 	tl->pending = TRIALLOOP_DONE;
 	tl->prof_mark = tl->prof_work = 0;   /* per-trial set-up is not per-frame work */
@@ -205,8 +235,10 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 	rec->has_rt = false;
 	rec->rt_ms = NAN;
 	rec->key_sdl_ms = 0;
+	rec->rt_clock = tl->c.resp->rt_clock;
 	rec->frames_planned = ef[EPOCH_STIMULUS];
 	rec->onset_ns = rec->offset_ns = 0;
+	rec->trigger_ns = 0;
 
 	struct responder_trial rt = {tl->c.nchoices, t->truth, t->has_level, t->level};
 	responder_begin(tl->c.resp, &rt);
@@ -225,6 +257,11 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 		draw(tl, EPOCH_STIMULUS);
 		int64_t ts = flip(tl, EPOCH_STIMULUS, f);
 		if (f == 0) {
+			/* The onset code goes out right after the flip returns, never before it. */
+			int code = tl->c.onset_codes && t->truth >= 0 && t->truth < tl->c.nchoices
+					   ? tl->c.onset_codes[t->truth] : 0;
+			if (!send_code(tl, code, &rec->trigger_ns))
+				return abandon(tl);
 			tl->onset_ns = ts;
 			responder_onset(tl->c.resp, ts);
 		}
@@ -260,8 +297,9 @@ enum trialloop_status trialloop_run(struct trialloop *tl, const struct trialloop
 	draw(tl, EPOCH_ITI);
 	tl->iti_start_ns = flip(tl, EPOCH_ITI, 0);
 	tl->iti_frames = ef[EPOCH_ITI] > 0 ? ef[EPOCH_ITI] : 1;
-	if (!poll_all(tl))   /* the trial is complete: keep it, pause or stop after storing it */
-		tl->pending = tl->abandoned_stop ? TRIALLOOP_STOP : TRIALLOOP_PAUSE;
+	if (!poll_all(tl))   /* the trial is complete: keep it, pause, stop or fail after storing it */
+		tl->pending = tl->abandoned_fault ? TRIALLOOP_FAULT
+			      : tl->abandoned_stop ? TRIALLOOP_STOP : TRIALLOOP_PAUSE;
 
 	int64_t p = tl->c.period_ns;
 	rec->start_ns = tl->flips[0];

@@ -19,6 +19,7 @@
 #include "adapt.h"
 #include "dclock.h"
 #include "display.h"
+#include "evsrc.h"
 #include "frames.h"
 #include "geom.h"
 #include "image.h"
@@ -34,6 +35,7 @@
 #include "stimlist_file.h"
 #include "store.h"
 #include "trialloop.h"
+#include "trigger.h"
 #include "version.h"
 
 #define MEASURE_FLIPS 120
@@ -263,9 +265,22 @@ static int open_responder(struct run_session *s, const struct run_options *o, ch
 		const char *keys[PROTOCOL_MAX_CHOICES];
 		for (size_t i = 0; i < s->proto.nchoices; i++)
 			keys[i] = s->proto.choices[i].key;
-		s->resp = responder_keyboard_new(keys, (int)s->proto.nchoices);
 		s->keyboard = true;
 		snprintf(s->observer_text, sizeof s->observer_text, "keyboard");
+		if (!s->rig.input_device) {
+			s->resp = responder_keyboard_new(keys, (int)s->proto.nchoices);
+			return 0;
+		}
+		/* The rig names the response keyboard: only it answers, with kernel time stamps.
+		 * A device that cannot be opened is an error, never a quiet fall-back to SDL keys. */
+		struct evsrc *src = evsrc_open_device(s->rig.input_device, e, sizeof e);
+		if (!src) {
+			*err = xasprintf("%s: [input] device: %s", s->rig.path ? s->rig.path : "rig", e);
+			return -1;
+		}
+		s->response_device = xstrdup(evsrc_name(src));
+		s->response_usb = evsrc_usb(src) ? xstrdup(evsrc_usb(src)) : NULL;
+		s->resp = responder_evdev_new(keys, (int)s->proto.nchoices, src);
 	} else {
 		struct observer_spec spec;
 		if (strncmp(o->observer, "model", 5) ||
@@ -305,11 +320,28 @@ static int make_mask(struct run_session *s, char **err)
 	return 0;
 }
 
-/* The presenter's parts: display, clock, responder, mask, trial loop and preloader. */
+/* The rig's trigger port, when it names one: opened before the session begins, so a missing
+ * port is an error before any trial. */
+static int open_trigger(struct run_session *s, char **err)
+{
+	if (!s->rig.trigger_port)
+		return 0;
+	char e[600];
+	s->trig = trigger_open(s->rig.trigger_port, s->rig.trigger_baud, e, sizeof e);
+	if (!s->trig) {
+		*err = xasprintf("%s: [trigger] port: %s", s->rig.path ? s->rig.path : "rig", e);
+		return -1;
+	}
+	return 0;
+}
+
+/* The presenter's parts: display, clock, responder, trigger port, mask, trial loop and
+ * preloader. */
 static int open_presenter(struct run_session *s, const struct run_options *o, struct diag_list *d,
 			  char **err)
 {
-	if (open_display(s, o, err) || open_clock(s, o, d, err) || open_responder(s, o, err))
+	if (open_display(s, o, err) || open_clock(s, o, d, err) || open_responder(s, o, err) ||
+	    open_trigger(s, err))
 		return -1;
 	s->paced = s->keyboard && !o->no_observer_screens;
 	if (make_mask(s, err))
@@ -320,6 +352,8 @@ static int open_presenter(struct run_session *s, const struct run_options *o, st
 		.fixation_px = s->proto.fixation_deg > 0 ? geom_deg_to_px(&s->rig, s->proto.fixation_deg, NULL) : 0,
 		.marker_corner = (int)s->rig.marker_corner, .marker_px = s->rig.marker_px,
 		.nchoices = (int)s->proto.nchoices, .mask = s->mask, .stop = &run_stop_flag,
+		.trigger = s->trig, .onset_codes = s->proto.triggers.onset_choice,
+		.response_code = s->proto.triggers.response,
 	};
 	memcpy(tc.epoch_frames, s->plan.epoch_frames, sizeof tc.epoch_frames);
 	if (run_screens_setup(s, &tc, d, err))
@@ -540,6 +574,9 @@ static int session_begin(struct run_session *s, const struct run_options *o, con
 	s->ss.timing_mode = xstrdup(mode);
 	free(s->ss.observer);
 	s->ss.observer = xstrdup(s->observer_text);
+	s->ss.response_device = s->response_device ? xstrdup(s->response_device) : NULL;
+	s->ss.response_usb = s->response_usb ? xstrdup(s->response_usb) : NULL;
+	s->ss.trigger_port = s->trig ? xstrdup(trigger_port(s->trig)) : NULL;
 	s->ss.planned_trials = (int)s->plan.ntrials;
 	return store_session_begin(s->store, &s->ss, err);
 }
@@ -822,8 +859,11 @@ int run_close(struct run_session *s, char **err)
 	}
 	preload_destroy(s->pre);
 	trialloop_destroy(s->tl);
+	trigger_close(s->trig);
 	display_texture_free(s->mask);
 	responder_destroy(s->resp);
+	free(s->response_device);
+	free(s->response_usb);
 	dclock_destroy(s->clock);
 	display_close(s->disp);
 	store_close(s->store);

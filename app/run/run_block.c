@@ -23,6 +23,7 @@
 #include "estimate.h"
 #include "preload.h"
 #include "trialloop.h"
+#include "trigger.h"
 
 /* A trial queued in this block run: a planned trial, or a repeat of one with a timing fault. */
 struct queued {
@@ -145,6 +146,35 @@ static enum flow event(struct run_session *s, const char *kind, const char *deta
 		return FLOW_END;
 	}
 	return FLOW_ON;
+}
+
+/* The response device or the trigger port failed during a trial (trialloop_fault): an event in
+ * the session, and the block stops with the reason; every stored trial is kept. */
+static enum flow run_fault(struct run_session *s, char **err)
+{
+	const char *why = trialloop_fault(s->tl);
+	char *ignored = NULL;
+	store_event(s->store, s->ss.id, "fault", why, &ignored);
+	free(ignored);
+	*err = xasprintf("%s; the block stopped, every stored trial is kept", why);
+	s->failed = true;
+	return FLOW_END;
+}
+
+/* Writes a block's trigger CODE (0: none). A failing port stops the block with the reason. */
+static enum flow block_code(struct run_session *s, int code, char **err)
+{
+	if (!s->trig || code <= 0)
+		return FLOW_ON;
+	char e[400];
+	if (!trigger_send(s->trig, code, NULL, e, sizeof e))
+		return FLOW_ON;
+	char *ignored = NULL;
+	store_event(s->store, s->ss.id, "fault", e, &ignored);
+	free(ignored);
+	*err = xasprintf("%s; the block stopped, every stored trial is kept", e);
+	s->failed = true;
+	return FLOW_END;
 }
 
 /* The observer's chords: keys the experimenter presses on the observer's keyboard, never shown on
@@ -339,6 +369,8 @@ static enum flow block_begin(struct blockrun *br, char **err)
 	char *detail = xasprintf("%s%s", prb->name, br->repeat_run ? " (again)" : "");
 	enum flow fl = event(s, "block_start", detail, err);
 	free(detail);
+	if (fl == FLOW_ON)
+		fl = block_code(s, s->proto.triggers.block_start, err);
 	if (fl == FLOW_ON && run_measure_refresh(s, &br->sum.refresh, err)) {
 		fl = run_stop_requested() ? FLOW_STOP : FLOW_END;
 		if (fl == FLOW_END)
@@ -460,6 +492,8 @@ static enum flow trial_after(struct blockrun *br, char **err)
 		return fl;
 	}
 	enum trialloop_status is = trialloop_iti_finish(s->tl);
+	if (is == TRIALLOOP_FAULT)
+		return run_fault(s, err);
 	if (is == TRIALLOOP_STOP)
 		return FLOW_STOP;
 	if (is == TRIALLOOP_PAUSE) {
@@ -513,6 +547,8 @@ static enum flow block_step(struct blockrun *br, char **err)
 	}
 	if (rc == TRIALLOOP_STOP)
 		return FLOW_STOP;
+	if (rc == TRIALLOOP_FAULT)
+		return run_fault(s, err);
 	/* Inter-trial interval from here: store first, then everything else. */
 	if (run_sink(s, &rec, err)) {
 		char *why = *err;
@@ -538,6 +574,8 @@ static enum run_block_result block_finish(struct blockrun *br, enum flow fl, cha
 	case FLOW_END: result = s->failed ? RUN_BLOCK_FAILED : RUN_BLOCK_ENDED; break;
 	case FLOW_STOP: result = RUN_BLOCK_INTERRUPTED; break;
 	}
+	if (!s->failed && block_code(s, s->proto.triggers.block_end, err) != FLOW_ON)
+		result = RUN_BLOCK_FAILED;
 	if (result == RUN_BLOCK_ENDED)
 		s->ended = true;
 	if (result == RUN_BLOCK_SKIPPED)

@@ -51,11 +51,13 @@ struct run_session {
 	struct store_session ss;
 	char observer_text[160];
 	bool keyboard, paced;
+	char *response_device, *response_usb;   /* the [input] device opened, NULL = SDL keys */
 
 	struct display *disp;
 	struct dclock *clock;
 	struct responder *resp;
 	struct trialloop *tl;
+	struct trigger *trig;      /* the rig's [trigger] port, NULL = none */
 	struct preload *pre;
 	struct SDL_Texture *mask;
 	bool linearize;          /* images pass through LIN (the rig's calibration) when decoded */
