@@ -56,7 +56,7 @@ int keywatch_run(struct display *d, struct evsrc *src, int n, const char *const 
 		int64_t now = dclock_monotonic_ns();
 		if (now - drawn > 50000000) {
 			display_clear(d);
-			display_draw_text(d, lines, nlines, 2);
+			display_draw_text(d, lines, nlines);
 			SDL_RenderPresent(display_renderer(d));
 			drawn = now;
 		}
