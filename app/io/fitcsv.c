@@ -16,6 +16,8 @@
 
 #include <csv.h>
 
+#include "decimal.h"
+
 struct reader {
 	const char *path;
 	struct diag_list *d;
@@ -48,17 +50,23 @@ static void on_field(void *s, size_t len, void *data)
 	r->field[r->nfield++] = f;
 }
 
+/* A plain decimal number with spaces around allowed (decimal_ok: no hex, inf or nan). */
 static bool is_number(const char *s, double *v)
 {
-	char *end;
+	char buf[64], *end;
 	while (*s == ' ')
 		s++;
-	if (!*s)
+	size_t n = strlen(s);
+	while (n && s[n - 1] == ' ')
+		n--;
+	if (!n || n >= sizeof buf)
+		return false;
+	memcpy(buf, s, n);
+	buf[n] = '\0';
+	if (!decimal_ok(buf))
 		return false;
 	errno = 0;
-	double x = strtod(s, &end);
-	while (*end == ' ')
-		end++;
+	double x = strtod(buf, &end);
 	if (errno || *end || !isfinite(x))
 		return false;
 	*v = x;

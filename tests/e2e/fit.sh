@@ -129,6 +129,13 @@ printf 'level,n,k\n1,10,11\n2,x,3\n' >"$WORK/bad2.csv"
 expect_exit "k > n and bad n exit 1" 1 "$TACHIST" fit "$WORK/bad2.csv" --m 2
 check "k larger than n named" grep -q "bad2.csv:2: error: k (11) is larger than n (10)" "$WORK/last.err"
 check "non-numeric n named" grep -q "bad2.csv:3: error: n 'x' is not a whole number" "$WORK/last.err"
+# Hex, infinities and NaN are not plain decimal numbers (strtod would take them).
+printf 'level,correct\n0x10,1\ninf,0\nnan,1\n 2 ,1\n' >"$WORK/hex.csv"
+expect_exit "hex, inf and nan levels exit 1" 1 "$TACHIST" fit "$WORK/hex.csv" --m 2
+check "hex level named" grep -q "hex.csv:2: error: level '0x10' is not a number" "$WORK/last.err"
+check "inf level named" grep -q "hex.csv:3: error: level 'inf' is not a number" "$WORK/last.err"
+check "nan level named" grep -q "hex.csv:4: error: level 'nan' is not a number" "$WORK/last.err"
+expect_eq "a level with spaces around is still a number" 0 "$(grep -c "hex.csv:5" "$WORK/last.err")"
 : >"$WORK/empty.csv"
 expect_exit "empty file exits 1" 1 "$TACHIST" fit "$WORK/empty.csv" --m 2
 check "empty file says so" grep -q "empty.csv: error: no data rows" "$WORK/last.err"
