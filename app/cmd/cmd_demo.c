@@ -16,6 +16,27 @@
 #define DEMO_MODEL "model:shape=weibull,threshold=18,slope=-2,lapse=0.02,rt=650,seed=1"
 
 /* Accuracy per level of the session's main-block trials, read back from the database. */
+/* Prints PATH so that a shell reads it back as one word: as it is when it holds only characters no
+ * shell treats specially, else in single quotes (a quote inside written '\''), so the commands the
+ * demo suggests can be pasted even when the database lies in a folder with spaces. */
+static void put_shell_word(const char *path)
+{
+	static const char plain[] = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz"
+				    "0123456789_./-+=:,@%";
+	if (*path && strspn(path, plain) == strlen(path)) {
+		fputs(path, stdout);
+		return;
+	}
+	putchar('\'');
+	for (const char *c = path; *c; c++) {
+		if (*c == '\'')
+			fputs("'\\''", stdout);
+		else
+			putchar(*c);
+	}
+	putchar('\'');
+}
+
 static void print_levels(const char *db, const char *id)
 {
 	struct store *st;
@@ -60,9 +81,11 @@ static void print_levels(const char *db, const char *id)
 	}
 	free(err);
 	store_close(st);
-	printf("\nmore:\n  tachist report --db %s --session %.8s\n"
-	       "  tachist export --db %s --format csv --session %.8s --out demo.csv\n",
-	       db, id, db, id);
+	printf("\nmore:\n  tachist report --db ");
+	put_shell_word(db);
+	printf(" --session %.8s\n  tachist export --db ", id);
+	put_shell_word(db);
+	printf(" --format csv --session %.8s --out demo.csv\n", id);
 }
 
 int cmd_demo(int argc, char **argv)

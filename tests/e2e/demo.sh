@@ -15,8 +15,13 @@ acc32=$(sqlite3 "$WORK/demo.db" 'select avg(correct) from trials where level=32'
 check "accuracy at budget 0 ($acc0) above budget 32 ($acc32)" awk -v a="$acc0" -v b="$acc32" 'BEGIN { exit !(a > b + 0.3) }'
 check "demo prints accuracy per noise budget" grep -q '^ *32 *36 ' "$WORK/last.out"
 check "demo says where to look next" grep -qx 'more:' "$WORK/last.out"
-check "one command per line: report" grep -Eq '^  tachist report --db [^ ]+ --session [0-9a-f]{8}$' "$WORK/last.out"
-check "one command per line: export" grep -Eq '^  tachist export --db [^ ]+ --format csv --session [0-9a-f]{8} --out demo.csv$' "$WORK/last.out"
+# The database path is one shell word: bare, or in single quotes when $WORK has a space.
+check "one command per line: report" grep -Eq "^  tachist report --db ('[^']+'|[^ ']+) --session [0-9a-f]{8}\$" "$WORK/last.out"
+check "one command per line: export" grep -Eq "^  tachist export --db ('[^']+'|[^ ']+) --format csv --session [0-9a-f]{8} --out demo.csv\$" "$WORK/last.out"
+cmdline=$(sed -n 's/^  tachist report //p' "$WORK/last.out")
+eval "set -- $cmdline"
+expect_eq "the printed report command is read back by the shell as its words" \
+  "--db|$WORK/demo.db|--session" "$1|$2|$3"
 # The demo exists to show the analysis: its report must carry a psychometric fit with a threshold
 # and a bootstrap interval, not a refusal (the demo model's threshold lies between its levels).
 expect_exit "report on the demo database" 0 "$TACHIST" report --db "$WORK/demo.db"

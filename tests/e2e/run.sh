@@ -125,7 +125,8 @@ expect_eq "every trial before the bad image stored" "$pos" "$(q "$WORK/g.db" 'se
 # 8. A display smaller than the stimulus refuses to start (a real X display, 200x150 px).
 mkproto "$WORK/big.ini" "$A/stimuli.csv" 14
 if command -v xvfb-run >/dev/null; then
-  expect_exit "display smaller than the stimulus refuses" 1 xvfb-run -a -s "-screen 0 200x150x24" \
+  # xvfb-run keeps its authority file under $TMPDIR and fails when that path has a space.
+  expect_exit "display smaller than the stimulus refuses" 1 env TMPDIR=/tmp xvfb-run -a -s "-screen 0 200x150x24" \
     env SDL_VIDEODRIVER=x11 "$TACHIST" run "$WORK/big.ini" --subject S01 --db "$WORK/h.db" \
     --rig "$WORK/rig.ini" --observer "$MODEL"
   check "refusal gives both sizes" grep -q 'stimulus needs 1[0-9][0-9]×1[0-9][0-9] px but the display offers 200×150 px' "$WORK/last.err"
