@@ -315,7 +315,7 @@ void cmd_print_man(FILE *out)
 	      "falling back to the demo rig with a warning.\n"
 	      ".TP\n.B NO_COLOR\nThe console uses no colours when it is set.\n"
 	      ".TP\n.B TMPDIR\nWhere temporary copies are made (pool, and readers of a server).\n"
-	      ".TP\n.B PGPASSWORD\nWith\n.BR PGHOST ,\n.B PGPASSFILE\nand libpq's other variables, "
+	      ".TP\n.B PGPASSWORD\nWith\n.BR PGHOST ,\n.B PGPASSFILE\nand libpq's other variables,\n"
 	      "how a PostgreSQL server given to pool --into or --db is reached.\n"
 	      ".SH FILES\n"
 	      ".TP\n.I tachist.db\nThe default database, in the current folder.\n"
