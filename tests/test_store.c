@@ -1130,26 +1130,39 @@ static void store_testConcurrentCreate(void **state)
 	assert_int_equal(failed, 0);
 }
 
+/* Loads tests/data/store_vVERSION.sql into a new file NAME, checks it is that version, opens it
+ * (which migrates it) and checks it is now the current version with our application id. Returns
+ * the open store; *DB gets the file's path (caller frees). */
+static struct store *open_migrated(const char *name, int version, char **db)
+{
+	*db = path_in(name);
+	char *v = sh_line("sqlite3 '%s' < tests/data/store_v%d.sql >/dev/null && sqlite3 '%s' "
+			  "'PRAGMA user_version'", *db, version, *db);
+	assert_int_equal(atoi(v), version);
+	free(v);
+	struct store *s = NULL;
+	char *err = NULL;
+	int rc = store_open(*db, &s, &err);
+	if (rc)
+		fprintf(stderr, "# %s\n", err);
+	assert_int_equal(rc, 0);
+	v = sh_line("sqlite3 '%s' 'PRAGMA user_version; PRAGMA application_id' | paste -sd,", *db);
+	char want[32];
+	snprintf(want, sizeof want, "%d,1952671859", STORE_SCHEMA_VERSION);
+	assert_string_equal(v, want);
+	free(v);
+	return s;
+}
+
 /* Version 3 -> 4 (tests/data/store_v3.sql): the sessions table rebuilt without losing a trial,
  * frame or event (foreign keys stay quiet during the rebuild), the new columns added, the old
  * responses marked as read after a flip, and the new status word accepted. */
 static void store_testMigrateV3(void **state)
 {
 	(void)state;
-	char *db = path_in("v3.db");
-	char *v = sh_line("sqlite3 '%s' < tests/data/store_v3.sql >/dev/null && sqlite3 '%s' "
-			  "'PRAGMA user_version'", db, db);
-	assert_int_equal(atoi(v), 3);
-	free(v);
-	struct store *s = NULL;
-	char *err = NULL;
-	int rc = store_open(db, &s, &err);
-	if (rc)
-		fprintf(stderr, "# %s\n", err);
-	assert_int_equal(rc, 0);
-	v = sh_line("sqlite3 '%s' 'PRAGMA user_version; PRAGMA application_id' | paste -sd,", db);
-	assert_string_equal(v, "5,1952671859");
-	free(v);
+	char *db, *err = NULL;
+	struct store *s = open_migrated("v3.db", 3, &db);
+	char *v;
 	v = sh_line("sqlite3 '%s' \"SELECT (SELECT count(*) FROM trials), (SELECT count(*) FROM "
 		    "frames), (SELECT count(*) FROM events), (SELECT group_concat(status) FROM "
 		    "(SELECT status FROM sessions ORDER BY id)), (SELECT count(*) FROM trials WHERE "
@@ -1197,20 +1210,9 @@ static void store_testMigrateV3(void **state)
 static void store_testMigrateV4(void **state)
 {
 	(void)state;
-	char *db = path_in("v4.db");
-	char *v = sh_line("sqlite3 '%s' < tests/data/store_v4.sql >/dev/null && sqlite3 '%s' "
-			  "'PRAGMA user_version'", db, db);
-	assert_int_equal(atoi(v), 4);
-	free(v);
-	struct store *s = NULL;
-	char *err = NULL;
-	int rc = store_open(db, &s, &err);
-	if (rc)
-		fprintf(stderr, "# %s\n", err);
-	assert_int_equal(rc, 0);
-	v = sh_line("sqlite3 '%s' 'PRAGMA user_version; PRAGMA application_id' | paste -sd,", db);
-	assert_string_equal(v, "5,1952671859");
-	free(v);
+	char *db, *err = NULL;
+	struct store *s = open_migrated("v4.db", 4, &db);
+	char *v;
 	v = sh_line("sqlite3 '%s' \"SELECT (SELECT count(*) FROM trials), (SELECT count(*) FROM "
 		    "frames), (SELECT count(*) FROM events), (SELECT status FROM sessions)\"", db);
 	assert_string_equal(v, "3|3|4|complete");
