@@ -124,10 +124,14 @@ static void rig_draw(struct console *c, void *st)
 			y++;
 		if (row == ROW_POOL) {   /* a long label: the field goes on the next line */
 			console_put(c, ++y, 0, 2, CONSOLE_HEAD, f ? (console_utf8(c) ? "\u25b8" : ">") : "");
-			console_put(c, y++, 2, COLS - 4, f ? CONSOLE_HEAD : CONSOLE_DIM, labels[row]);
+			int x = 2 + console_put(c, y, 2, COLS - 4, f ? CONSOLE_HEAD : CONSOLE_DIM,
+						labels[row]);
+			console_put(c, y++, x + 2, COLS - x - 4, CONSOLE_DIM,
+				    "a PostgreSQL server: postgresql://HOST/DB, no password");
+		} else {
+			console_put(c, y, 0, 2, CONSOLE_HEAD, f ? (console_utf8(c) ? "\u25b8" : ">") : "");
+			console_put(c, y, 2, vx - 2, f ? CONSOLE_HEAD : CONSOLE_DIM, labels[row]);
 		}
-		console_put(c, y, 0, 2, CONSOLE_HEAD, f ? (console_utf8(c) ? "\u25b8" : ">") : "");
-		console_put(c, y, 2, vx - 2, f ? CONSOLE_HEAD : CONSOLE_DIM, labels[row]);
 		if (row == ROW_CORNER) {
 			char buf[80];
 			snprintf(buf, sizeof buf, "%s %s %s", console_utf8(c) ? "\u25c2" : "<",
@@ -142,9 +146,6 @@ static void rig_draw(struct console *c, void *st)
 		shown.msg[0] = '\0';
 		console_field_draw(c, &shown, y, vx, row == ROW_PATH || row == ROW_NAME ||
 				   row == ROW_POOL ? w : 12, f);
-		if (row == ROW_POOL && !f && !shown.len)
-			console_put(c, y, vx + 2, w - 2, CONSOLE_DIM, "nowhere (postgresql://HOST/DB, "
-				    "no password)");
 		if (row == ROW_DISPLAY && !f)
 			console_put(c, y, vx + 14, w - 14, CONSOLE_DIM, "0 = the first display");
 		if (row == ROW_MARKER && !f)
