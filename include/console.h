@@ -309,6 +309,19 @@ void console_text_push(struct console *c, const char *title, char **lines, size_
 /* ---- shared state the screens read and write ---- */
 const struct console_options *console_options(const struct console *c);
 
+/* Sending finished sessions to the rig's [pool] server in a child `tachist pool --follow`
+ * (sender.c). Start returns NULL when the rig at RIG_PATH sets no server. Poll reads what the
+ * child said without blocking (true when the state changed); STATUS words the state for the
+ * screen (*BAD when there is a problem); STOP ends the child and frees S. */
+struct console_send;
+struct console_send *console_send_start(const char *self_exe, const char *db_path,
+					const char *rig_path);
+bool console_send_poll(struct console_send *s);
+void console_send_status(const struct console_send *s, char *buf, size_t len, bool *bad);
+void console_send_stop(struct console_send *s);
+/* The console's sender, NULL when none. */
+const struct console_send *console_sender(const struct console *c);
+
 /* What the set-up form of a new session held when it was left, kept for the console's life so
  * that going back and coming again never loses what was typed (a saved rig included). After a
  * session opens from it, the subject and seed are cleared (the next session is another one). */

@@ -30,6 +30,9 @@ struct rig {
 			     * NULL = keys through SDL (frame-stamped) */
 	char *trigger_port; /* [trigger] port: serial device for trigger codes, NULL = none */
 	int trigger_baud;   /* [trigger] baud, default 115200 */
+	char *pool_server;  /* [pool] server: where the console sends finished sessions (a libpq
+			     * URI or keyword string, never with a password), NULL = nowhere */
+	char *pool_schema;  /* [pool] schema on that server, NULL = the default (tachist) */
 };
 
 #endif

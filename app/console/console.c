@@ -43,6 +43,7 @@ struct console {
 	void *answer_ud;
 	struct console_pres *pres;        /* the session's presentation child, or NULL */
 	struct console_draft draft;       /* the set-up form as last left */
+	struct console_send *send;        /* sending finished sessions to a server, or NULL */
 };
 
 /* ---- terminal restoration (process-wide; the one place with file-scope state) ---- */
@@ -388,6 +389,11 @@ void console_set_presenter(struct console *c, struct console_pres *p)
 	c->pres = p;
 }
 
+const struct console_send *console_sender(const struct console *c)
+{
+	return c->send;
+}
+
 const struct console_options *console_options(const struct console *c)
 {
 	return &c->opt;
@@ -626,6 +632,8 @@ int console_main(const struct console_options *o)
 	curs_set(0);
 	setup_colors(c);
 
+	if (!c->opt.rig_is_fallback)
+		c->send = console_send_start(c->opt.self_exe, c->opt.db_path, c->opt.rig_path);
 	console_welcome_push(c);
 	c->dirty = true;
 	int rc = 0;
@@ -635,6 +643,8 @@ int console_main(const struct console_options *o)
 			break;
 		}
 		if (c->pres && console_pres_poll(c->pres))
+			c->dirty = true;
+		if (c->send && console_send_poll(c->send))
 			c->dirty = true;
 		struct console_screen *s = console_top(c);
 		if (s && s->tick && s->tick(c, s->st))
@@ -666,6 +676,7 @@ int console_main(const struct console_options *o)
 		console_pres_destroy(c->pres, 5000);
 		c->pres = NULL;
 	}
+	console_send_stop(c->send);
 	restore_terminal();
 	if (stop_signal)
 		fprintf(stderr, "tachist console: stopped by signal %d; stored trials are kept\n",

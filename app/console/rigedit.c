@@ -21,7 +21,7 @@
 #include "rig_file.h"
 
 enum row { ROW_NAME, ROW_WCM, ROW_HCM, ROW_WPX, ROW_HPX, ROW_DIST, ROW_HZ, ROW_DISPLAY,
-	   ROW_CORNER, ROW_MARKER, ROW_PATH, ROW_COUNT };
+	   ROW_CORNER, ROW_MARKER, ROW_POOL, ROW_PATH, ROW_COUNT };
 
 struct rigedit {
 	struct console_field f[ROW_COUNT];   /* ROW_CORNER is a choice, not a field */
@@ -46,7 +46,8 @@ static const struct console_key rig_keys[] = {
 
 static const char *const labels[ROW_COUNT] = {
 	"Name", "Width (cm)", "Height (cm)", "Width (px)", "Height (px)", "Distance (cm)",
-	"Refresh (Hz)", "Display index", "Marker corner", "Marker (px)", "Save to",
+	"Refresh (Hz)", "Display index", "Marker corner", "Marker (px)",
+	"Send finished sessions to", "Save to",
 };
 
 static const char *const corners[] = {"none", "top-left", "top-right", "bottom-left",
@@ -75,6 +76,14 @@ static char *rig_text(const struct rigedit *e)
 	char *screen = ini_edit_set_keys(base, "screen", skeys, svals, 8);
 	char *text = ini_edit_set_keys(screen, "marker", mkeys, mvals, 2);
 	free(screen);
+	/* [pool] server: set, or removed when the field is emptied. */
+	if (e->f[ROW_POOL].len || (e->have_base && !e->from_demo && e->base.pool_server)) {
+		const char *pkeys[] = {"server"};
+		const char *pvals[] = {e->f[ROW_POOL].len ? e->f[ROW_POOL].text : NULL};
+		char *pooled = ini_edit_set_keys(text, "pool", pkeys, pvals, 1);
+		free(text);
+		text = pooled;
+	}
 	return text;
 }
 
@@ -113,8 +122,16 @@ static void rig_draw(struct console *c, void *st)
 		bool f = e->row == row;
 		if (row == ROW_PATH)
 			y++;
-		console_put(c, y, 0, 2, CONSOLE_HEAD, f ? (console_utf8(c) ? "\u25b8" : ">") : "");
-		console_put(c, y, 2, vx - 2, f ? CONSOLE_HEAD : CONSOLE_DIM, labels[row]);
+		if (row == ROW_POOL) {   /* a long label: the field goes on the next line */
+			console_put(c, ++y, 0, 2, CONSOLE_HEAD, f ? (console_utf8(c) ? "\u25b8" : ">") : "");
+			int x = 2 + console_put(c, y, 2, COLS - 4, f ? CONSOLE_HEAD : CONSOLE_DIM,
+						labels[row]);
+			console_put(c, y++, x + 2, COLS - x - 4, CONSOLE_DIM,
+				    "a PostgreSQL server: postgresql://HOST/DB, no password");
+		} else {
+			console_put(c, y, 0, 2, CONSOLE_HEAD, f ? (console_utf8(c) ? "\u25b8" : ">") : "");
+			console_put(c, y, 2, vx - 2, f ? CONSOLE_HEAD : CONSOLE_DIM, labels[row]);
+		}
 		if (row == ROW_CORNER) {
 			char buf[80];
 			snprintf(buf, sizeof buf, "%s %s %s", console_utf8(c) ? "\u25c2" : "<",
@@ -127,7 +144,8 @@ static void rig_draw(struct console *c, void *st)
 		if (shown.msg[0] && f)
 			msg = e->f[row].msg;
 		shown.msg[0] = '\0';
-		console_field_draw(c, &shown, y, vx, row == ROW_PATH || row == ROW_NAME ? w : 12, f);
+		console_field_draw(c, &shown, y, vx, row == ROW_PATH || row == ROW_NAME ||
+				   row == ROW_POOL ? w : 12, f);
 		if (row == ROW_DISPLAY && !f)
 			console_put(c, y, vx + 14, w - 14, CONSOLE_DIM, "0 = the first display");
 		if (row == ROW_MARKER && !f)
@@ -180,7 +198,8 @@ static void save(struct console *c, struct rigedit *e)
 		make_default_folder(e->dflt);
 	for (int row = 0; row < ROW_COUNT; row++) {
 		struct console_field *f = &e->f[row];
-		bool optional = row == ROW_NAME || row == ROW_DISPLAY || row == ROW_MARKER;
+		bool optional = row == ROW_NAME || row == ROW_DISPLAY || row == ROW_MARKER ||
+				row == ROW_POOL;
 		if (row == ROW_CORNER || (optional && !f->len))
 			continue;
 		if (console_field_check(f, f->text, f->msg, sizeof f->msg) != 0) {
@@ -310,6 +329,8 @@ void console_rig_push(struct console *c, const char *path, double size_deg,
 	console_field_init(&e->f[ROW_MARKER], "marker size", CONSOLE_INTEGER, 3, num);
 	e->f[ROW_MARKER].min = 1;
 	e->f[ROW_MARKER].max = 500;
+	console_field_init(&e->f[ROW_POOL], "server", CONSOLE_TEXT, 400,
+			   e->have_base && !demo && b->pool_server ? b->pool_server : "");
 	e->corner = e->have_base ? (int)b->marker_corner : RIG_MARKER_NONE;
 	const char *xdg = getenv("XDG_CONFIG_HOME"), *home = getenv("HOME");
 	char *dflt = xdg && *xdg ? xasprintf("%s/tachist/rig.ini", xdg)

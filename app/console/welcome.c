@@ -112,6 +112,13 @@ static void welcome_draw(struct console *c, void *st)
 	y = value_and_note(c, y, o->rig_path ? o->rig_path : "(none found)", CONSOLE_WARN,
 			   o->rig_is_fallback ? "demo rig: describe your own display before real "
 						"sessions" : "");
+	if (console_sender(c)) {
+		char st[600];
+		bool bad;
+		console_send_status(console_sender(c), st, sizeof st, &bad);
+		console_put(c, y, 2, 10, CONSOLE_DIM, "Sending");
+		console_put(c, y++, 12, COLS - 14, bad ? CONSOLE_WARN : CONSOLE_PLAIN, st);
+	}
 	y++;
 	console_put(c, y, 2, w, CONSOLE_OK, "Press Enter when you have read this to set up a session.");
 }

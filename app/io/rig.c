@@ -6,6 +6,7 @@
  *   [luminance] the photometer calibration, read by rig_lum.c
  *   [input]   device (the response keyboard: an event device path or a device name)
  *   [trigger] port (a serial device for trigger codes), baud
+ *   [pool]    server (a PostgreSQL server the console sends finished sessions to), schema
  *
  * A table of keys (type, range, place in struct rig) drives the parse; every problem becomes a
  * FILE:LINE diagnostic and parsing goes on. Documented in docs/files.md ("Rig profile"). */
@@ -23,6 +24,7 @@
 #include "decimal.h"
 #include "inifile.h"
 #include "rig_lum.h"
+#include "store_pg.h"
 #include "suggest.h"
 
 enum rig_type { RT_NUMBER, RT_INT, RT_TEXT, RT_CORNER };
@@ -54,13 +56,16 @@ static const struct rig_key keys[] = {
 	{"input", "device", RT_TEXT, offsetof(struct rig, input_device), 0, 0, 0, 0, NULL},
 	{"trigger", "port", RT_TEXT, offsetof(struct rig, trigger_port), 0, 0, 0, 0, NULL},
 	{"trigger", "baud", RT_INT, offsetof(struct rig, trigger_baud), 1200, 4000000, 0, 0, "baud"},
+	{"pool", "server", RT_TEXT, offsetof(struct rig, pool_server), 0, 0, 0, 0, NULL},
+	{"pool", "schema", RT_TEXT, offsetof(struct rig, pool_schema), 0, 0, 0, 0, NULL},
 };
 #define NKEYS (sizeof keys / sizeof keys[0])
 _Static_assert(NKEYS > K_SIZE_PX, "keys[] rows K_CORNER and K_SIZE_PX");
 
 static const char *const corners[] = {"none", "top-left", "top-right", "bottom-left",
 				      "bottom-right"};
-static const char *const section_names[] = {"screen", "marker", "luminance", "input", "trigger"};
+static const char *const section_names[] = {"screen", "marker", "luminance", "input", "trigger",
+						    "pool"};
 #define NSECTIONS (sizeof section_names / sizeof section_names[0])
 
 struct rig_ctx {
@@ -91,6 +96,26 @@ static void set_value(struct rig_ctx *c, const struct rig_key *k, const char *v,
 	char *base = (char *)c->r;
 	if (!*v) {
 		err(c, line, "%s has no value", k->name);
+		return;
+	}
+	if (k->offset == offsetof(struct rig, pool_server)) {
+		char *shown = store_pg_shown(v);
+		bool has_password = strcmp(shown, v) != 0;
+		free(shown);
+		if (!store_pg_is_conninfo(v)) {
+			err(c, line, "server = %s is not a PostgreSQL server (postgresql://HOST/DB or "
+			    "a libpq keyword string such as 'host=HOST dbname=DB')", v);
+			return;
+		}
+		if (has_password) {
+			err(c, line, "server must not hold a password (a rig file is not the place "
+			    "for one): put it in ~/.pgpass or PGPASSWORD");
+			return;
+		}
+	}
+	if (k->offset == offsetof(struct rig, pool_schema) && !store_pg_schema_valid(v)) {
+		err(c, line, "schema = %s is not a schema name tachist uses (lower-case letters, "
+		    "digits and '_', starting with a letter or '_')", v);
 		return;
 	}
 	if (k->type == RT_TEXT) {
@@ -159,7 +184,7 @@ static int on_entry(void *user, const char *section, const char *key, const char
 		if (near)
 			err(c, line, "unknown section [%s]; did you mean [%s]?", section, near);
 		else
-			err(c, line, "unknown section [%s] (a rig has [screen], [marker], [luminance], [input] and [trigger])", section);
+			err(c, line, "unknown section [%s] (a rig has [screen], [marker], [luminance], [input], [trigger] and [pool])", section);
 		return 0;
 	}
 	if (c->outside) {
@@ -265,5 +290,7 @@ void rig_clear(struct rig *r)
 	free(r->lum);
 	free(r->input_device);
 	free(r->trigger_port);
+	free(r->pool_server);
+	free(r->pool_schema);
 	memset(r, 0, sizeof *r);
 }

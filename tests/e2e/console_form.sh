@@ -102,7 +102,7 @@ tm_keys e
 expect_screen "e opens the rig editor" "The observer's display"
 tm_keys Enter C-u
 tm_type "labrig1"
-tm_keys Enter Down Down Down Down Down Down Down Down Down Down Enter C-u
+tm_keys Enter Down Down Down Down Down Down Down Down Down Down Down Enter C-u
 tm_type "myrig.ini"
 tm_keys Enter s
 expect_screen "the rig is saved and used" "Rig           myrig.ini"

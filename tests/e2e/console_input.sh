@@ -92,7 +92,7 @@ tm_keys C-u
 tm_type "114"
 tm_keys Enter
 expect_screen "rig editor: the stimulus in pixels follows the distance" "the protocol's stimulus of 1.75 deg is"
-tm_keys Down Down Down Down Down Enter C-u
+tm_keys Down Down Down Down Down Down Enter C-u
 tm_type "$WORK/no/such/rig.ini"
 tm_keys Enter
 expect_screen "rig editor: saving into a folder that does not exist" "no such folder: $WORK/no/such"
