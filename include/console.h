@@ -189,6 +189,7 @@ struct console_brief {
 /* The live state of a running block (a copy of run_snapshot). */
 struct console_snap {
 	int state;                 /* enum run_state */
+	bool paused_by_observer;   /* PAUSED by the observer's Escape: the experimenter decides */
 	int block;
 	char block_name[64];
 	bool practice;
@@ -263,6 +264,8 @@ const struct console_pres_state *console_pres_state(const struct console_pres *p
 int console_pres_run_block(struct console_pres *p, int block);
 int console_pres_skip_block(struct console_pres *p, int block);
 int console_pres_pause(struct console_pres *p, bool pause);
+/* The experimenter's answer to the observer's pause: go on, or SKIP the rest of the block. */
+int console_pres_answer(struct console_pres *p, bool skip);
 int console_pres_end(struct console_pres *p);
 int console_pres_close(struct console_pres *p);
 /* Tells the child a signal stopped the console: it ends the trial under way unstored and closes

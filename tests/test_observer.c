@@ -53,7 +53,7 @@ static void observer_testParse(void **state)
 static void observer_testFunction(void **state)
 {
 	(void)state;
-	struct observer_spec s = {PSYFN_WEIBULL, 0.2, 3.0, 0.04, 500, 1};
+	struct observer_spec s = {PSYFN_WEIBULL, 0.2, 3.0, 0.04, 500, 1, 0};
 	double g = 0.25;
 	assert_float_equal(observer_pc(&s, 4, true, 0.2), g + (1 - g - 0.04) * (1 - exp(-1)), 1e-12);
 	assert_float_equal(observer_pc(&s, 4, true, 0.0), g, 1e-12);
@@ -129,7 +129,7 @@ static void observer_testProportionCorrect(void **state)
 static void observer_testSeeded(void **state)
 {
 	(void)state;
-	struct observer_spec s = {PSYFN_LOGISTIC, 0.5, 0.1, 0.02, 700, 77};
+	struct observer_spec s = {PSYFN_LOGISTIC, 0.5, 0.1, 0.02, 700, 77, 0};
 	struct observer *a = observer_new(&s), *b = observer_new(&s);
 	for (int i = 0; i < 200; i++) {
 		struct observer_answer x, y;

@@ -36,7 +36,8 @@
 enum msg_type {
 	MSG_OPENED = 1, MSG_BLOCK, MSG_SNAP, MSG_SUMMARY, MSG_DIAG, MSG_ERROR, MSG_CLOSED
 };
-enum cmd_type { CMD_RUN = 1, CMD_SKIP, CMD_PAUSE, CMD_RESUME, CMD_END, CMD_CLOSE };
+enum cmd_type { CMD_RUN = 1, CMD_SKIP, CMD_PAUSE, CMD_RESUME, CMD_END, CMD_CLOSE, CMD_GO_ON,
+		CMD_SKIP_REST };
 
 struct pres_msg {
 	int type;
@@ -78,6 +79,7 @@ struct console_pres {
 struct child_ctx {
 	int cmd_fd, ev_fd;
 	bool paused, end, close;
+	enum run_cmd answer;      /* GO_ON or SKIP for the observer's pause, sent once */
 	long dropped;             /* snapshots that found the pipe full */
 };
 
@@ -115,6 +117,8 @@ static void take_cmd(struct child_ctx *x, const struct pres_cmd *k)
 	case CMD_RESUME: x->paused = false; break;
 	case CMD_END: x->end = true; break;
 	case CMD_CLOSE: x->end = x->close = true; break;
+	case CMD_GO_ON: x->answer = RUN_CMD_GO_ON; break;
+	case CMD_SKIP_REST: x->answer = RUN_CMD_SKIP; break;
 	default: break;   /* RUN and SKIP make no sense inside a block; ignored */
 	}
 }
@@ -149,6 +153,7 @@ static enum run_cmd child_progress(const struct run_snapshot *s, void *ctx)
 	m.type = MSG_SNAP;
 	struct console_snap *o = &m.u.snap;
 	o->state = (int)s->state;
+	o->paused_by_observer = s->paused_by_observer;
 	o->block = s->block;
 	copy_str(o->block_name, sizeof o->block_name, s->block_name);
 	o->practice = s->practice;
@@ -179,6 +184,11 @@ static enum run_cmd child_progress(const struct run_snapshot *s, void *ctx)
 		x->end = true;
 	if (x->end)
 		return RUN_CMD_END;
+	if (x->answer != RUN_CMD_CONTINUE) {
+		enum run_cmd a = x->answer;
+		x->answer = RUN_CMD_CONTINUE;
+		return a;
+	}
 	return x->paused ? RUN_CMD_PAUSE : RUN_CMD_CONTINUE;
 }
 
@@ -276,6 +286,7 @@ static void child_main(int cmd_fd, int ev_fd, const struct run_options *opt)
 			continue;
 		if (k.type == CMD_RUN && k.arg >= 0 && (size_t)k.arg < run_block_count(s)) {
 			x.paused = x.end = false;
+			x.answer = RUN_CMD_CONTINUE;
 			struct run_block_summary sum;
 			memset(&sum, 0, sizeof sum);
 			free(err);
@@ -584,6 +595,11 @@ int console_pres_skip_block(struct console_pres *p, int block)
 int console_pres_pause(struct console_pres *p, bool pause)
 {
 	return send_cmd(p, pause ? CMD_PAUSE : CMD_RESUME, 0);
+}
+
+int console_pres_answer(struct console_pres *p, bool skip)
+{
+	return send_cmd(p, skip ? CMD_SKIP_REST : CMD_GO_ON, 0);
 }
 
 int console_pres_end(struct console_pres *p)
