@@ -72,6 +72,7 @@ struct console_pres {
 	char partial[512];        /* an unfinished log line */
 	size_t npartial;
 	char *db_path;
+	struct run_options opt;   /* what the session was opened with; strings are copies */
 };
 
 /* ---------------- the child ---------------- */
@@ -397,7 +398,22 @@ struct console_pres *console_pres_start(const struct run_options *opt, char *err
 	p->st.phase = CONSOLE_PRES_OPENING;
 	p->st.seed = opt->has_seed ? opt->seed : 0;
 	p->db_path = xstrdup(opt->db_path ? opt->db_path : "tachist.db");
+	p->opt = *opt;
+	const char **strs[] = {&p->opt.protocol_path, &p->opt.subject, &p->opt.db_path,
+			       &p->opt.rig_path, &p->opt.observer, &p->opt.resume_id,
+			       &p->opt.screenshot_dir};
+	for (size_t i = 0; i < sizeof strs / sizeof strs[0]; i++)
+		if (*strs[i])
+			*strs[i] = xstrdup(*strs[i]);
 	return p;
+}
+
+struct console_pres *console_pres_reopen_accepting(const struct console_pres *p, char *err,
+						   size_t errlen)
+{
+	struct run_options o = p->opt;
+	o.accept_rig_mismatch = true;
+	return console_pres_start(&o, err, errlen);
 }
 
 static void add_line(char (*ring)[200], int *n, int cap, const char *text)
@@ -457,6 +473,9 @@ static void take_msg(struct console_pres *p, const struct pres_msg *m)
 		break;
 	case MSG_ERROR:
 		snprintf(st->error, sizeof st->error, "%s", m->u.text);
+		/* run_open's refusal of a display that does not match the rig names the option. */
+		st->rig_mismatch = st->phase == CONSOLE_PRES_OPENING &&
+				   strstr(m->u.text, "--accept-rig-mismatch") != NULL;
 		break;
 	case MSG_CLOSED:
 		if (m->u.text[0])
@@ -671,5 +690,10 @@ void console_pres_destroy(struct console_pres *p, int wait_ms)
 	close(p->ev_fd);
 	close(p->log_fd);
 	free(p->db_path);
+	const char *strs[] = {p->opt.protocol_path, p->opt.subject, p->opt.db_path,
+			      p->opt.rig_path, p->opt.observer, p->opt.resume_id,
+			      p->opt.screenshot_dir};
+	for (size_t i = 0; i < sizeof strs / sizeof strs[0]; i++)
+		free((char *)strs[i]);
 	free(p);
 }
