@@ -1,6 +1,6 @@
-/* cmd_console — `tachist console [--db FILE] [--rig FILE] [--clock-hz HZ]`: opens the experimenter's console
- * (app/console). Resolves the database, the rig profile and the protocols folder, then hands
- * over; the console restores the terminal on every way out. */
+/* cmd_console — `tachist console [--db FILE] [--rig FILE] [--clock-hz HZ]`: opens the
+ * experimenter's console (app/console). Resolves the database, the rig profile and the protocols
+ * folder, then hands over; the console restores the terminal on every way out. */
 #include <stdlib.h>
 #include <string.h>
 
