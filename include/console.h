@@ -28,6 +28,7 @@ struct console_options {
 	bool rig_is_fallback;     /* the rig is the demo rig because no profile was found */
 	const char *protocols_dir;/* folder listed by the protocol chooser; may be NULL */
 	const char *self_exe;     /* this program, for the presenter child (argv[0] or /proc) */
+	double clock_hz;          /* headless sessions: the virtual clock's rate (0 = the rig's) */
 };
 
 /* Runs the console until the experimenter quits or a signal ends it. Always leaves the terminal
@@ -189,6 +190,7 @@ struct console_brief {
 /* The live state of a running block (a copy of run_snapshot). */
 struct console_snap {
 	int state;                 /* enum run_state */
+	bool paused_by_observer;   /* PAUSED by the observer's Escape: the experimenter decides */
 	int block;
 	char block_name[64];
 	bool practice;
@@ -243,6 +245,7 @@ struct console_pres_state {
 	bool block_has_result[CONSOLE_MAX_BLOCKS];
 	struct console_summary block_result[CONSOLE_MAX_BLOCKS];
 	char error[1024];                      /* last error the child reported */
+	bool rig_mismatch;                     /* refused: the display does not match the rig */
 	char diags[CONSOLE_PRES_LINES][200];   /* FILE:LINE problems from run_open */
 	int ndiags;
 	char log[CONSOLE_PRES_LINES][200];     /* last lines the child printed */
@@ -263,6 +266,12 @@ const struct console_pres_state *console_pres_state(const struct console_pres *p
 int console_pres_run_block(struct console_pres *p, int block);
 int console_pres_skip_block(struct console_pres *p, int block);
 int console_pres_pause(struct console_pres *p, bool pause);
+/* A new presentation with P's options, accepting a display that does not match the rig
+ * (run_options.accept_rig_mismatch, stored as an event). NULL with ERR on failure. */
+struct console_pres *console_pres_reopen_accepting(const struct console_pres *p, char *err,
+						   size_t errlen);
+/* The experimenter's answer to the observer's pause: go on, or SKIP the rest of the block. */
+int console_pres_answer(struct console_pres *p, bool skip);
 int console_pres_end(struct console_pres *p);
 int console_pres_close(struct console_pres *p);
 /* Tells the child a signal stopped the console: it ends the trial under way unstored and closes

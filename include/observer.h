@@ -28,6 +28,7 @@ struct observer_spec {
 	enum psyfn_shape shape;
 	double threshold, slope, lapse, rt_ms;
 	uint64_t seed;
+	unsigned pause_at;    /* >0: presses Escape (the observer's pause) in every Nth trial */
 };
 
 struct observer;

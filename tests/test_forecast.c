@@ -19,7 +19,7 @@ static const double levels5[] = {0.5, 0.75, 1.0, 1.25, 1.5};
 static void opts_for(struct forecast_opts *o, int runs, int nboot, uint64_t seed)
 {
 	memset(o, 0, sizeof *o);
-	o->truth = (struct observer_spec){PSYFN_WEIBULL, 1.0, 3.5, 0.02, 600, 1};
+	o->truth = (struct observer_spec){PSYFN_WEIBULL, 1.0, 3.5, 0.02, 600, 1, 0};
 	o->m = 2;
 	fit_opts_default(&o->fit, 2);
 	o->fit.shape = PSYFN_WEIBULL;
@@ -43,10 +43,10 @@ static struct forecast_design constant(const double *lv, size_t n, int per_level
 static void forecast_testTruthLevel(void **state)
 {
 	(void)state;
-	struct observer_spec w = {PSYFN_WEIBULL, 1.0, 3.5, 0.02, 600, 1};
+	struct observer_spec w = {PSYFN_WEIBULL, 1.0, 3.5, 0.02, 600, 1, 0};
 	double F = (0.75 - 0.5) / (1 - 0.5 - 0.02);
 	assert_float_equal(forecast_truth_level(&w, 2, 0.75), pow(-log(1 - F), 1 / 3.5), 1e-9);
-	struct observer_spec l = {PSYFN_LOGISTIC, 16, -4, 0.0, 600, 1};   /* falling, m = 4 */
+	struct observer_spec l = {PSYFN_LOGISTIC, 16, -4, 0.0, 600, 1, 0};   /* falling, m = 4 */
 	double g = 0.25, pc = g + 0.3 * (1 - g);
 	double Fm = 1 - 0.3;
 	assert_float_equal(forecast_truth_level(&l, 4, pc), 16 + 4 * log(Fm / (1 - Fm)), 1e-9);

@@ -46,6 +46,20 @@ static void observer_testParse(void **state)
 	assert_int_equal(observer_parse("model:threshold", &s, err, sizeof err), -1);
 	assert_int_equal(observer_parse("model:shape=weibull,threshold=-1", &s, err, sizeof err), -1);
 	assert_int_equal(observer_parse("model:slope=0", &s, err, sizeof err), -1);
+	/* pause=N (Escape every Nth trial, for tests) is kept in the spec text, and left out of it
+	 * when off, so the specs stored before it are written as they were. */
+	assert_int_equal(observer_parse("model:seed=2,pause=4", &s, err, sizeof err), 0);
+	assert_int_equal(s.pause_at, 4);
+	observer_format(&s, buf, sizeof buf);
+	assert_non_null(strstr(buf, ",pause=4"));
+	assert_int_equal(observer_parse(buf, &t, err, sizeof err), 0);
+	assert_int_equal(t.pause_at, 4);
+	assert_int_equal(observer_parse("model", &s, err, sizeof err), 0);
+	assert_int_equal(s.pause_at, 0);
+	observer_format(&s, buf, sizeof buf);
+	assert_null(strstr(buf, "pause"));
+	assert_int_equal(observer_parse("model:pause=0", &s, err, sizeof err), -1);
+	assert_int_equal(observer_parse("model:pause=2.5", &s, err, sizeof err), -1);
 }
 
 /* P at the Weibull threshold is γ + (1 − γ − λ)(1 − e^−1) (the Weibull CDF at x = α); a negative
@@ -53,7 +67,7 @@ static void observer_testParse(void **state)
 static void observer_testFunction(void **state)
 {
 	(void)state;
-	struct observer_spec s = {PSYFN_WEIBULL, 0.2, 3.0, 0.04, 500, 1};
+	struct observer_spec s = {PSYFN_WEIBULL, 0.2, 3.0, 0.04, 500, 1, 0};
 	double g = 0.25;
 	assert_float_equal(observer_pc(&s, 4, true, 0.2), g + (1 - g - 0.04) * (1 - exp(-1)), 1e-12);
 	assert_float_equal(observer_pc(&s, 4, true, 0.0), g, 1e-12);
@@ -129,7 +143,7 @@ static void observer_testProportionCorrect(void **state)
 static void observer_testSeeded(void **state)
 {
 	(void)state;
-	struct observer_spec s = {PSYFN_LOGISTIC, 0.5, 0.1, 0.02, 700, 77};
+	struct observer_spec s = {PSYFN_LOGISTIC, 0.5, 0.1, 0.02, 700, 77, 0};
 	struct observer *a = observer_new(&s), *b = observer_new(&s);
 	for (int i = 0; i < 200; i++) {
 		struct observer_answer x, y;

@@ -19,7 +19,7 @@
 
 static const struct cmd commands[] = {
 	{"console", "the experimenter's console (ncurses)",
-	 "tachist console [--db FILE] [--rig FILE]\n",
+	 "tachist console [--db FILE] [--rig FILE] [--clock-hz HZ]\n",
 	 "Sets up and watches sessions on the experimenter's terminal: choose a protocol, check it, "
 	 "start blocks on the observer's display, follow progress live, and look at results. It needs "
 	 "a terminal of at least 80x24.",

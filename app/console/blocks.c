@@ -31,6 +31,7 @@ static const struct console_key blocks_keys[] = {
 	{"a", "run again"},
 	{"r", "results"},
 	{"c", "close session"},
+	{"m", "accept rig mismatch"},
 };
 
 /* A block's estimated length: planned until trials have run in this session, then from their
@@ -113,6 +114,10 @@ static void draw_state(struct console *c, const struct console_pres_state *st, i
 		console_words(st->error[0] ? st->error : "The session could not go on", words,
 			      sizeof words);
 		y += console_wrap(c, y, 2, w, 4, CONSOLE_BAD, words);
+		if (st->rig_mismatch)
+			y += console_wrap(c, y + 1, 2, w, 2, CONSOLE_WARN,
+					  "m accepts the mismatch and opens the session anyway (the "
+					  "choice is stored as an event of the session).") + 1;
 		break;
 	}
 	case CONSOLE_PRES_CLOSED:
@@ -307,6 +312,22 @@ static void answer_close(struct console *c, void *ud, bool yes)
 	console_pres_close(console_presenter(c));
 }
 
+static void answer_accept(struct console *c, void *ud, bool yes)
+{
+	(void)ud;
+	struct console_pres *p = console_presenter(c);
+	if (!yes || !p)
+		return;
+	char err[300];
+	struct console_pres *np = console_pres_reopen_accepting(p, err, sizeof err);
+	if (!np) {
+		console_say(c, CONSOLE_BAD, "%s", err);
+		return;
+	}
+	console_set_presenter(c, np);
+	console_say(c, CONSOLE_WARN, "opening the session on the mismatched display");
+}
+
 static bool blocks_key(struct console *c, void *sv, int ch)
 {
 	struct blocks *b = sv;
@@ -357,6 +378,15 @@ static bool blocks_key(struct console *c, void *sv, int ch)
 		console_confirm(c, q, answer_skip, b);
 		return true;
 	}
+	case 'm':
+	case 'M':
+		if (st && st->phase == CONSOLE_PRES_FAILED && st->rig_mismatch)
+			console_confirm(c, "Open the session on this display although it does not "
+					   "match the rig?", answer_accept, b);
+		else
+			console_say(c, CONSOLE_DIM, "only when a session was refused for a display "
+				    "that does not match the rig");
+		return true;
 	case 'r':
 	case 'R':
 		if (st && st->session_id[0])

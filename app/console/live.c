@@ -1,6 +1,7 @@
 /* live — a block as it runs: trial n of N with a progress bar, elapsed and remaining time, running
  * accuracy and median RT, timing health (refresh, dropped frames, flagged trials) and the last few
- * trials; pause, resume, and end the session (asked twice). Everything shown comes from the
+ * trials; pause, resume, and end the session (asked twice). When the observer pauses (Escape), the
+ * experimenter decides here: go on, skip the rest of the block (asked twice) or end the session. Everything shown comes from the
  * snapshots the presentation child sends from its inter-trial intervals; this screen never talks
  * to the trial loop directly, and drawing it costs the loop nothing. It leaves by itself when the
  * block is over. */
@@ -21,8 +22,10 @@ struct live {
 };
 
 static const struct console_key live_keys[] = {
-	{"p", "pause / resume"},
-	{"e", "end the session"},
+	{"p", "pause/resume"},
+	{"g", "go on"},
+	{"s", "skip block"},
+	{"e", "end session"},
 };
 
 static void clock_text(char *buf, size_t len, double s)
@@ -64,10 +67,16 @@ static void live_draw(struct console *c, void *sv)
 	const struct console_snap *s = &st->snap;
 	console_putf(c, y, 2, w, CONSOLE_HEAD, "Block %d of %zu: %s%s", s->block + 1, st->nblocks,
 		     s->block_name, s->practice ? "  (a practice block)" : "");
-	const char *word = l->end_sent ? "ending" : state_word(s->state);
+	const char *word = l->end_sent ? "ending"
+			 : s->paused_by_observer ? "PAUSED by the observer" : state_word(s->state);
 	console_put(c, y, COLS - 2 - (int)strlen(word), (int)strlen(word),
 		    s->state == RUN_STATE_PAUSED || l->end_sent ? CONSOLE_WARN : CONSOLE_OK, word);
 	y += 2;
+	if (s->paused_by_observer && !l->end_sent) {
+		y += console_wrap(c, y, 2, w, 2, CONSOLE_WARN,
+				  "The observer paused (Escape) and waits for you: g goes on, s skips "
+				  "the rest of this block, e ends the session.") + 1;
+	}
 	char tn[64];
 	snprintf(tn, sizeof tn, "Trial %zu of %zu", s->trial_n, s->trial_total);
 	console_put(c, y, 2, 20, CONSOLE_PLAIN, tn);
@@ -147,6 +156,19 @@ static void answer_end(struct console *c, void *ud, bool yes)
 	}
 }
 
+static void answer_skip(struct console *c, void *ud, bool yes)
+{
+	(void)ud;
+	if (yes && console_pres_answer(console_presenter(c), true) == 0)
+		console_say(c, CONSOLE_WARN, "skipping the rest of the block; stored trials are kept");
+}
+
+static bool observer_paused(struct console_pres *p)
+{
+	const struct console_pres_state *st = console_pres_state(p);
+	return st->has_snap && st->snap.paused_by_observer;
+}
+
 static bool live_key(struct console *c, void *sv, int ch)
 {
 	struct live *l = sv;
@@ -161,6 +183,21 @@ static bool live_key(struct console *c, void *sv, int ch)
 		console_pres_pause(p, l->pause_sent);
 		console_say(c, CONSOLE_WARN, l->pause_sent ? "pausing after the current trial"
 							   : "resuming");
+		return true;
+	case 'g':
+	case 'G':
+		if (!observer_paused(p))
+			console_say(c, CONSOLE_DIM, "g answers the observer's pause; p pauses the block");
+		else if (console_pres_answer(p, false) == 0)
+			console_say(c, CONSOLE_OK, "going on");
+		return true;
+	case 's':
+	case 'S':
+		if (!observer_paused(p))
+			console_say(c, CONSOLE_DIM, "s answers the observer's pause; p pauses the block");
+		else
+			console_confirm(c, "Skip the rest of this block? Its stored trials are kept.",
+					answer_skip, l);
 		return true;
 	case 'e':
 	case 'E':

@@ -36,7 +36,8 @@
 enum msg_type {
 	MSG_OPENED = 1, MSG_BLOCK, MSG_SNAP, MSG_SUMMARY, MSG_DIAG, MSG_ERROR, MSG_CLOSED
 };
-enum cmd_type { CMD_RUN = 1, CMD_SKIP, CMD_PAUSE, CMD_RESUME, CMD_END, CMD_CLOSE };
+enum cmd_type { CMD_RUN = 1, CMD_SKIP, CMD_PAUSE, CMD_RESUME, CMD_END, CMD_CLOSE, CMD_GO_ON,
+		CMD_SKIP_REST };
 
 struct pres_msg {
 	int type;
@@ -71,6 +72,7 @@ struct console_pres {
 	char partial[512];        /* an unfinished log line */
 	size_t npartial;
 	char *db_path;
+	struct run_options opt;   /* what the session was opened with; strings are copies */
 };
 
 /* ---------------- the child ---------------- */
@@ -78,6 +80,7 @@ struct console_pres {
 struct child_ctx {
 	int cmd_fd, ev_fd;
 	bool paused, end, close;
+	enum run_cmd answer;      /* GO_ON or SKIP for the observer's pause, sent once */
 	long dropped;             /* snapshots that found the pipe full */
 };
 
@@ -115,6 +118,8 @@ static void take_cmd(struct child_ctx *x, const struct pres_cmd *k)
 	case CMD_RESUME: x->paused = false; break;
 	case CMD_END: x->end = true; break;
 	case CMD_CLOSE: x->end = x->close = true; break;
+	case CMD_GO_ON: x->answer = RUN_CMD_GO_ON; break;
+	case CMD_SKIP_REST: x->answer = RUN_CMD_SKIP; break;
 	default: break;   /* RUN and SKIP make no sense inside a block; ignored */
 	}
 }
@@ -149,6 +154,7 @@ static enum run_cmd child_progress(const struct run_snapshot *s, void *ctx)
 	m.type = MSG_SNAP;
 	struct console_snap *o = &m.u.snap;
 	o->state = (int)s->state;
+	o->paused_by_observer = s->paused_by_observer;
 	o->block = s->block;
 	copy_str(o->block_name, sizeof o->block_name, s->block_name);
 	o->practice = s->practice;
@@ -179,6 +185,11 @@ static enum run_cmd child_progress(const struct run_snapshot *s, void *ctx)
 		x->end = true;
 	if (x->end)
 		return RUN_CMD_END;
+	if (x->answer != RUN_CMD_CONTINUE) {
+		enum run_cmd a = x->answer;
+		x->answer = RUN_CMD_CONTINUE;
+		return a;
+	}
 	return x->paused ? RUN_CMD_PAUSE : RUN_CMD_CONTINUE;
 }
 
@@ -276,6 +287,7 @@ static void child_main(int cmd_fd, int ev_fd, const struct run_options *opt)
 			continue;
 		if (k.type == CMD_RUN && k.arg >= 0 && (size_t)k.arg < run_block_count(s)) {
 			x.paused = x.end = false;
+			x.answer = RUN_CMD_CONTINUE;
 			struct run_block_summary sum;
 			memset(&sum, 0, sizeof sum);
 			free(err);
@@ -386,7 +398,22 @@ struct console_pres *console_pres_start(const struct run_options *opt, char *err
 	p->st.phase = CONSOLE_PRES_OPENING;
 	p->st.seed = opt->has_seed ? opt->seed : 0;
 	p->db_path = xstrdup(opt->db_path ? opt->db_path : "tachist.db");
+	p->opt = *opt;
+	const char **strs[] = {&p->opt.protocol_path, &p->opt.subject, &p->opt.db_path,
+			       &p->opt.rig_path, &p->opt.observer, &p->opt.resume_id,
+			       &p->opt.screenshot_dir};
+	for (size_t i = 0; i < sizeof strs / sizeof strs[0]; i++)
+		if (*strs[i])
+			*strs[i] = xstrdup(*strs[i]);
 	return p;
+}
+
+struct console_pres *console_pres_reopen_accepting(const struct console_pres *p, char *err,
+						   size_t errlen)
+{
+	struct run_options o = p->opt;
+	o.accept_rig_mismatch = true;
+	return console_pres_start(&o, err, errlen);
 }
 
 static void add_line(char (*ring)[200], int *n, int cap, const char *text)
@@ -446,6 +473,9 @@ static void take_msg(struct console_pres *p, const struct pres_msg *m)
 		break;
 	case MSG_ERROR:
 		snprintf(st->error, sizeof st->error, "%s", m->u.text);
+		/* run_open's refusal of a display that does not match the rig names the option. */
+		st->rig_mismatch = st->phase == CONSOLE_PRES_OPENING &&
+				   strstr(m->u.text, "--accept-rig-mismatch") != NULL;
 		break;
 	case MSG_CLOSED:
 		if (m->u.text[0])
@@ -586,6 +616,11 @@ int console_pres_pause(struct console_pres *p, bool pause)
 	return send_cmd(p, pause ? CMD_PAUSE : CMD_RESUME, 0);
 }
 
+int console_pres_answer(struct console_pres *p, bool skip)
+{
+	return send_cmd(p, skip ? CMD_SKIP_REST : CMD_GO_ON, 0);
+}
+
 int console_pres_end(struct console_pres *p)
 {
 	return send_cmd(p, CMD_END, 0);
@@ -655,5 +690,10 @@ void console_pres_destroy(struct console_pres *p, int wait_ms)
 	close(p->ev_fd);
 	close(p->log_fd);
 	free(p->db_path);
+	const char *strs[] = {p->opt.protocol_path, p->opt.subject, p->opt.db_path,
+			      p->opt.rig_path, p->opt.observer, p->opt.resume_id,
+			      p->opt.screenshot_dir};
+	for (size_t i = 0; i < sizeof strs / sizeof strs[0]; i++)
+		free((char *)strs[i]);
 	free(p);
 }

@@ -323,6 +323,7 @@ static void make_options(struct console *c, struct setup *s, struct run_options 
 	o->observer = s->model ? s->f[ROW_MODEL].text : "keyboard";
 	o->headless = s->display == CONSOLE_HEADLESS_PACED || s->display == CONSOLE_HEADLESS_FAST;
 	o->pace = s->display == CONSOLE_HEADLESS_PACED;
+	o->clock_hz = o->headless ? console_options(c)->clock_hz : 0;
 	o->window = s->display == CONSOLE_WINDOW;
 	o->has_seed = true;
 	o->seed = strtoull(s->f[ROW_SEED].text, NULL, 10);

@@ -80,7 +80,7 @@ int forecast_truth_from_trials(const double *levels, const int *correct, size_t 
 		snprintf(why, len, "%s", fr.reason);
 		return -1;
 	}
-	*out = (struct observer_spec){fr.f.shape, fr.f.alpha, fr.f.beta, fr.f.lambda, 600, 1};
+	*out = (struct observer_spec){fr.f.shape, fr.f.alpha, fr.f.beta, fr.f.lambda, 600, 1, 0};
 	return 0;
 }
 

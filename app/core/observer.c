@@ -30,7 +30,7 @@ static int parse_num(const char *v, double *out)
 
 int observer_parse(const char *spec, struct observer_spec *out, char *err, size_t errlen)
 {
-	struct observer_spec s = {PSYFN_WEIBULL, 1.0, 3.5, 0.02, 600.0, 1};
+	struct observer_spec s = {PSYFN_WEIBULL, 1.0, 3.5, 0.02, 600.0, 1, 0};
 	if (!strncmp(spec, "model:", 6))
 		spec += 6;
 	else if (!strcmp(spec, "model"))
@@ -63,15 +63,17 @@ int observer_parse(const char *spec, struct observer_spec *out, char *err, size_
 			s.rt_ms = x;
 		} else if (!strcmp(k, "seed") && num_ok && x >= 0 && x == floor(x) && x < 1.8e19) {
 			s.seed = (uint64_t)x;
+		} else if (!strcmp(k, "pause") && num_ok && x >= 1 && x == floor(x) && x <= 1e6) {
+			s.pause_at = (unsigned)x;
 		} else if (!strcmp(k, "threshold") || !strcmp(k, "slope") || !strcmp(k, "lapse") ||
-			   !strcmp(k, "rt") || !strcmp(k, "seed")) {
+			   !strcmp(k, "rt") || !strcmp(k, "seed") || !strcmp(k, "pause")) {
 			snprintf(err, errlen, "model observer: %s=%s is out of range or not a number "
 				 "(threshold: number; slope: non-zero; lapse: 0 to <0.5; rt: ms, >0; "
-				 "seed: whole number)", k, v);
+				 "seed: whole number; pause: trial number, 1 or more)", k, v);
 			rc = -1;
 		} else {
 			snprintf(err, errlen, "model observer: unknown key '%s' (shape, threshold, slope, "
-				 "lapse, rt, seed)", k);
+				 "lapse, rt, seed, pause)", k);
 			rc = -1;
 		}
 		if (rc)
@@ -92,6 +94,9 @@ void observer_format(const struct observer_spec *s, char *buf, size_t len)
 	snprintf(buf, len, "model:shape=%s,threshold=%g,slope=%g,lapse=%g,rt=%g,seed=%llu",
 		 psyfn_shape_name(s->shape), s->threshold, s->slope, s->lapse, s->rt_ms,
 		 (unsigned long long)s->seed);
+	size_t used = strlen(buf);
+	if (s->pause_at && used < len)
+		snprintf(buf + used, len - used, ",pause=%u", s->pause_at);
 }
 
 struct observer *observer_new(const struct observer_spec *s)

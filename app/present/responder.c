@@ -190,6 +190,9 @@ struct model {
 	struct observer_answer ans;
 	int64_t due_ns;         /* onset + RT; 0 before the onset */
 	bool answered;
+	unsigned ntrials;       /* trials begun */
+	unsigned pause_at;      /* the spec's pause=N: Escape at the onset of every Nth trial */
+	bool pause_due;
 };
 
 static void model_begin(struct responder *r, const struct responder_trial *t)
@@ -198,6 +201,7 @@ static void model_begin(struct responder *r, const struct responder_trial *t)
 	observer_answer(m->obs, t->nchoices, t->truth, t->has_level, t->level, &m->ans);
 	m->due_ns = 0;
 	m->answered = false;
+	m->pause_due = m->pause_at && ++m->ntrials % m->pause_at == 0;
 }
 
 static void model_onset(struct responder *r, int64_t t)
@@ -214,6 +218,12 @@ static int model_poll(struct responder *r, int64_t now, struct responder_event *
 	enum responder_kind k = next_sdl(ev->key, sizeof ev->key, &ev->sdl_ms);
 	if (k == RESP_ESCAPE || k == RESP_QUIT) {
 		ev->kind = k;
+		ev->t_ns = now;
+		return 1;
+	}
+	if (m->due_ns && m->pause_due) {
+		m->pause_due = false;
+		ev->kind = RESP_ESCAPE;
 		ev->t_ns = now;
 		return 1;
 	}
@@ -247,6 +257,7 @@ struct responder *responder_model_new(const struct observer_spec *spec)
 	m->base.is_model = true;
 	m->base.rt_clock = "model";
 	m->obs = observer_new(spec);
+	m->pause_at = spec->pause_at;
 	return &m->base;
 }
 
