@@ -13,7 +13,7 @@ if ! command -v "$CC" >/dev/null 2>&1; then
 fi
 flags="-Wall -g -O1 -fsanitize=fuzzer,address,undefined -fno-sanitize-recover=undefined -std=c11 -Iinclude -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE"
 # All of core (pure computation) and the text parsers of io; nothing that needs SDL or SQLite.
-srcs="$(ls app/core/*.c) app/io/infile.c app/io/inifile.c $(ls app/io/protocol*.c) app/io/rig.c app/io/rig_lum.c app/io/ini_edit.c app/io/stimlist.c"
+srcs="$(ls app/core/*.c) app/io/infile.c app/io/inifile.c $(ls app/io/protocol*.c) app/io/rig.c app/io/rig_lum.c app/io/ini_edit.c app/io/store_pg_names.c app/io/stimlist.c"
 libs="$(pkg-config --libs inih gsl) -lcsv -lm"
 status=0
 for t in protocol stimlist; do
