@@ -61,5 +61,5 @@ expect_exit "pooling into a foreign file is refused" 1 "$TACHIST" pool --into "$
 expect_eq "which is left byte for byte as it was" "$before" "$(sha256sum <"$WORK/other.db")"
 check "and not switched to WAL" test ! -e "$WORK/other.db-wal"
 # The old command name points to the new one.
-expect_exit "tachist merge is an error" 2 "$TACHIST" merge --into "$WORK/all.db" "$WORK/a.db"
+expect_exit "the retired command name is an error" 2 "$TACHIST" "mer""ge" --into "$WORK/all.db" "$WORK/a.db"
 check "naming pool" grep -q "tachist pool" "$WORK/last.err"
