@@ -61,8 +61,8 @@ static void rig_testProblems(void **state)
 		"r.ini:4: error: width_px = 1920.5 is not a whole number",
 		"r.ini:6: error: unknown key 'distanse_cm' in [screen]; did you mean 'distance_cm'?",
 		"r.ini:8: error: duplicate key 'refresh_hz' (first set on line 7)",
-		"r.ini:10: error: corner = top-lft is not one of none, top-left, top-right, bottom-left, "
-		"bottom-right; did you mean 'top-left'?",
+		("r.ini:10: error: corner = top-lft is not one of none, top-left, top-right, bottom-left, "
+		 "bottom-right; did you mean 'top-left'?"),
 		"r.ini:1: error: missing required key 'distance_cm' in [screen]",
 	};
 	for (size_t i = 0; i < 6; i++)
