@@ -82,8 +82,8 @@ static void stimlist_testProblems(void **state)
 	diag_init(&d);
 	assert_int_equal(stimlist_parse("s.csv", csv, strlen(csv), &p, &l, &d), -1);
 	const char *want[] = {
-		"s.csv:3: error: category 'rnig' is not one of the protocol's categories (ring, bar); did "
-		"you mean 'ring'?",
+		("s.csv:3: error: category 'rnig' is not one of the protocol's categories (ring, bar); did "
+		 "you mean 'ring'?"),
 		"s.csv:4: error: level 'high' is not a number",
 		"s.csv:5: error: empty cell in column 'image'",
 		"s.csv:7: error: row has 2 fields; the header has 3",
