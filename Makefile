@@ -85,10 +85,12 @@ deps:
 	done; \
 	if [ -n "$$still" ]; then echo "deps: could not install:$$still" >&2; exit 1; fi
 
-# Tests build with AddressSanitizer and UBSan in their own folder.
+# Tests build with AddressSanitizer and UBSan in their own folder, one compiler per processor
+# unless make was already given -j.
 SAN := -O1 -g -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=undefined
+PAR  = $(if $(findstring -j,$(MAKEFLAGS))$(findstring jobserver,$(MAKEFLAGS)),,-j$(shell nproc 2>/dev/null || echo 1))
 test: deps
-	$(MAKE) --no-print-directory BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
+	$(MAKE) --no-print-directory $(PAR) BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
 	$(MAKE) --no-print-directory demo-assets
 	$(MAKE) --no-print-directory layers
 	@BUILD=build/san sh tests/run.sh
@@ -98,12 +100,12 @@ layers:
 	@sh tests/tools/layers.sh
 
 bench: deps
-	$(MAKE) --no-print-directory BUILD=build/rel CFLAGS="-O2 -g -DNDEBUG" check-build
+	$(MAKE) --no-print-directory $(PAR) BUILD=build/rel CFLAGS="-O2 -g -DNDEBUG" check-build
 	@BUILD=build/rel sh tests/bench/run.sh
 
 # demo, test and bench build in a sub-make, after `deps` has installed what was missing.
 demo: deps
-	$(MAKE) --no-print-directory $(BUILD)/tachist demo-assets
+	$(MAKE) --no-print-directory $(PAR) $(BUILD)/tachist demo-assets
 	./$(BUILD)/tachist demo
 
 fuzz:
@@ -112,7 +114,7 @@ fuzz:
 # Long robustness runs (every exact interval, simulated fits, the whole malformed-input corpus):
 # tests/soak/*.sh, each printing ok/not ok lines like an end-to-end script. Minutes, not in `test`.
 soak: deps
-	$(MAKE) --no-print-directory BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
+	$(MAKE) --no-print-directory $(PAR) BUILD=build/san CFLAGS="$(SAN)" LDFLAGS="$(SAN)" check-build
 	@BUILD=build/san sh tests/soak/run.sh
 
 # The program, its tests and tools build without a warning (-Werror) with gcc and clang at every
