@@ -101,6 +101,28 @@ pg_sql "DROP TRIGGER drop_me ON tachist.events"
 expect_exit "the next pooling" 0 "$TACHIST" pool --into "$PGCONN" "$WORK/d.db"
 check "sends both sessions whole" grep -q "d.db: 2 sessions added, 0 updated, 16 trials added, 2 events added" "$WORK/last.out"
 
+# -- deleting on the server: sessions take their rows with them -----------------------------
+# The server's tables carry no per-row reference to sessions (it would double the time of taking
+# a session; every session's rows arrive in the transaction that writes its row); triggers do
+# what ON DELETE CASCADE does in the SQLite file.
+rows_of() { pg_sql "SELECT (SELECT count(*) FROM tachist.trials WHERE session_id IN ($1)) || ' ' || (SELECT count(*) FROM tachist.frames WHERE session_id IN ($1)) || ' ' || (SELECT count(*) FROM tachist.events WHERE session_id IN ($1))"; }
+D_IDS=$(sed "s/.*/'&'/" "$WORK/d.ids" | paste -sd, -)
+expect_eq "the dropped rig's sessions have their rows" "16 16 2" "$(rows_of "$D_IDS")"
+pg_sql "DELETE FROM tachist.sessions WHERE subject = 'RIGD'" >/dev/null
+expect_eq "deleting sessions on the server deletes their trials, frames and events" "0 0 0" "$(rows_of "$D_IDS")"
+A1=$(pg_sql "SELECT id FROM tachist.sessions WHERE subject = 'RIGA' ORDER BY id LIMIT 1")
+pg_sql "SELECT 1 FROM tachist.frames WHERE session_id = '$A1' AND trial = 0" | grep -q 1 || notok "a pooled trial has its frame row"
+pg_sql "DELETE FROM tachist.trials WHERE session_id = '$A1' AND trial = 0" >/dev/null
+expect_eq "deleting a trial deletes its frames" 0 "$(pg_sql "SELECT count(*) FROM tachist.frames WHERE session_id = '$A1' AND trial = 0")"
+expect_eq "and nothing else" "4 31 29 5" "$(srv_count tachist)"
+
+# -- a value the server's column type cannot take ---------------------------------------------
+"$FILL" "$WORK/w.db" 1 4 --subject WIDE >/dev/null
+sqlite3 "$WORK/w.db" "UPDATE trials SET frames_actual = 3000000000 WHERE trial = 2"
+expect_exit "a source integer beyond the server's integer column fails" 1 "$TACHIST" pool --into "$PGCONN" "$WORK/w.db"
+check "naming the column and the value" grep -q "column frames_actual holds a value the server's integer cannot take ('3000000000')" "$WORK/last.err"
+expect_eq "and nothing of that session is on the server" 0 "$(pg_sql "SELECT count(*) FROM tachist.sessions WHERE subject = 'WIDE'")"
+
 # -- pool --follow: ended sessions only; an unreachable server is retried ----------------------
 "$FILL" "$WORK/f.db" 1 3 --subject RUNNING --running >/dev/null
 "$FILL" "$WORK/f.db" 1 3 --subject ENDED >/dev/null
