@@ -42,7 +42,7 @@ BINDIR   ?= $(PREFIX)/bin
 MANDIR   ?= $(PREFIX)/share/man
 
 .PHONY: all deps test unit e2e check-build bench demo fuzz clean demo-assets soak compilers \
-        man install uninstall layers
+        man install uninstall layers fuzz-build
 all: $(BUILD)/tachist
 
 $(BUILD)/tachist: $(OBJ)
@@ -110,6 +110,24 @@ demo: deps
 
 fuzz:
 	@sh tests/fuzz/run.sh
+
+# The libFuzzer targets (tests/fuzz/fuzz_*.c): all of core and the text parsers of io, nothing that
+# needs SDL or SQLite, built with clang into build/fuzz/ (each source compiled once for both).
+FUZZ_CC   ?= clang
+FUZZ_SAN  := -fsanitize=address,undefined -fno-sanitize-recover=undefined
+FUZZ_SRC  := $(wildcard app/core/*.c) app/io/infile.c app/io/inifile.c $(wildcard app/io/protocol*.c) \
+             app/io/rig.c app/io/rig_lum.c app/io/ini_edit.c app/io/store_pg_names.c app/io/stimlist.c
+FUZZ_OBJ  := $(FUZZ_SRC:%.c=build/fuzz/obj/%.o)
+FUZZ_BIN  := $(patsubst tests/fuzz/%.c,build/fuzz/%,$(wildcard tests/fuzz/fuzz_*.c))
+fuzz-build: $(FUZZ_BIN)
+build/fuzz/obj/%.o: %.c
+	@mkdir -p $(dir $@)
+	$(Q)$(FUZZ_CC) -std=c11 -Wall -g -O1 -fsanitize=fuzzer-no-link $(FUZZ_SAN) $(CPPFLAGS) \
+	  $(shell pkg-config --cflags gsl inih) -MMD -MP -c -o $@ $<
+build/fuzz/fuzz_%: tests/fuzz/fuzz_%.c $(FUZZ_OBJ)
+	$(Q)$(FUZZ_CC) -std=c11 -Wall -g -O1 -fsanitize=fuzzer $(FUZZ_SAN) $(CPPFLAGS) \
+	  $(shell pkg-config --cflags gsl inih) -o $@ $< $(FUZZ_OBJ) $(shell pkg-config --libs inih gsl) -lcsv -lm
+-include $(FUZZ_OBJ:.o=.d)
 
 # Long robustness runs (every exact interval, simulated fits, the whole malformed-input corpus):
 # tests/soak/*.sh, each printing ok/not ok lines like an end-to-end script. Minutes, not in `test`.
