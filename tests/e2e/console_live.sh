@@ -7,43 +7,7 @@
 . tests/e2e/lib.sh
 . tests/e2e/console.inc
 
-cat > "$WORK/long.ini" <<INI
-[experiment]
-name = long
-list = $ROOT/assets-demo/stimuli.csv
-
-[categories]
-ring = s
-bar = d
-cross = f
-chevron = j
-wedge = k
-lattice = l
-
-[timing]
-fixation_ms = 100
-blank_ms = 50
-stimulus_ms = 50
-mask_ms = 50
-response_ms = 2000
-feedback_ms = 100
-iti_ms = 100
-
-[display]
-size_deg = 1.75
-background = 128
-fixation_deg = 0.3
-mask = noise
-feedback = mark
-
-[block warmup]
-select = level=0 & exemplar=1
-practice = yes
-
-[block main]
-select = exemplar=3,4,5
-order = random
-INI
+console_proto "$WORK/long.ini" long 'exemplar=3,4,5'
 
 trials() { sqlite3 "$DB" "select count(*) from trials where session_id like '$1%'"; }
 

@@ -13,38 +13,7 @@ if ! pg_start; then
 fi
 ok "a throwaway PostgreSQL cluster started ($PGBIN)"
 
-cat > "$WORK/one.ini" <<INI
-[experiment]
-name = one
-list = $ROOT/assets-demo/stimuli.csv
-
-[categories]
-ring = s
-bar = d
-cross = f
-chevron = j
-wedge = k
-lattice = l
-
-[timing]
-fixation_ms = 100
-blank_ms = 50
-stimulus_ms = 50
-mask_ms = 50
-response_ms = 2000
-feedback_ms = 100
-iti_ms = 100
-
-[display]
-size_deg = 1.75
-background = 128
-fixation_deg = 0.3
-mask = noise
-feedback = mark
-
-[block main]
-select = level=0 & exemplar=1
-INI
+console_proto "$WORK/one.ini" one
 cp "$ROOT/assets-demo/rig.ini" "$WORK/rig.ini"
 
 # -- the rig file: a password is refused with FILE:LINE ----------------------------------------

@@ -8,43 +8,7 @@
 . tests/e2e/console.inc
 
 SPEC="model:shape=weibull,threshold=18,slope=-3,lapse=0.02,rt=550,seed=7"
-cat > "$WORK/quick.ini" <<INI
-[experiment]
-name = quick
-list = $ROOT/assets-demo/stimuli.csv
-
-[categories]
-ring = s
-bar = d
-cross = f
-chevron = j
-wedge = k
-lattice = l
-
-[timing]
-fixation_ms = 100
-blank_ms = 50
-stimulus_ms = 50
-mask_ms = 50
-response_ms = 2000
-feedback_ms = 100
-iti_ms = 100
-
-[display]
-size_deg = 1.75
-background = 128
-fixation_deg = 0.3
-mask = noise
-feedback = mark
-
-[block warmup]
-select = level=0 & exemplar=1
-practice = yes
-
-[block main]
-select = exemplar=3
-order = random
-INI
+console_proto "$WORK/quick.ini" quick 'exemplar=3'
 
 tm_start 100 30 XDG_CONFIG_HOME="$WORK/xdg" LANG=C.UTF-8 DISPLAY= WAYLAND_DISPLAY=
 tm_console
