@@ -151,6 +151,9 @@ void console_field_begin(struct console_field *f);
  * f->msg; Enter validates the whole text and returns DONE only when it passes (else GOING with
  * f->msg set); Esc restores the text from before editing and returns CANCELLED. */
 enum console_field_result console_field_key(struct console_field *f, int ch);
+/* Moves *ROW of a form of N rows for Up (and Shift-Tab), Down and Tab, wrapping around; true when
+ * CH was one of those keys. */
+bool console_form_move(int *row, int n, int ch);
 /* Validates TEXT for F's kind and range; returns 0, or -1 with a sentence in MSG. */
 int console_field_check(const struct console_field *f, const char *text, char *msg, size_t len);
 /* Draws the field's value at (Y, X) in W columns (with the cursor when editing) and its message,

@@ -10,7 +10,7 @@
 # spend their time waiting on a terminal, a server or a child). Every script works in its own
 # scratch folder, tmux socket and database cluster, so the order does not matter; the ones that
 # take longest start first so the run ends sooner. Each result line is printed when its test ends,
-# with its wall time; the closing line sums them all. `sh tests/run.sh NAME` runs one.
+# with its wall time; the closing line sums them all. `sh tests/run.sh NAME...` runs those named.
 BUILD=${BUILD:-build/san}
 TACHIST=$(pwd)/$BUILD/tachist
 export BUILD TACHIST
@@ -59,7 +59,7 @@ if [ "${1:-}" = --one ]; then
 fi
 
 rm -rf "$log"; mkdir -p "$log"
-only=${1:-}
+only=" $* "
 # The slowest first (wall seconds on two cores, measured; the order changes nothing else).
 SLOW="column_table pool_pg console_pool_pg adaptive_run calibrate console_notes bad_inputs
       console_live console_ctrlc install fuzz console_form console_session make_deps"
@@ -73,9 +73,9 @@ SLOW="column_table pool_pg console_pool_pg adaptive_run calibrate console_notes 
   done
 } | while read -r item; do
   case $item in *.sh) n=$(basename "$item" .sh) ;; *) n=$(basename "$item") ;; esac
-  case "$only" in ""|"$n") echo "$item" ;; esac
+  case "$only" in "  "|*" $n "*) echo "$item" ;; esac
 done >"$log/items"
-[ -s "$log/items" ] || { echo "no test named '$only'" >&2; exit 1; }
+[ -s "$log/items" ] || { echo "no test named$only" >&2; exit 1; }
 
 jobs=${TEST_JOBS:-$(($(nproc 2>/dev/null || echo 1) + 1))}
 xargs -P "$jobs" -n 1 sh "$0" --one <"$log/items"

@@ -388,14 +388,9 @@ static bool settings_key(struct console *c, struct calib *e, int ch)
 			console_top(c)->editing = false;
 		return true;
 	}
+	if (console_form_move(&e->row, ROW_COUNT, ch))
+		return true;
 	switch (ch) {
-	case KEY_UP:
-		e->row = (e->row + ROW_COUNT - 1) % ROW_COUNT;
-		return true;
-	case KEY_DOWN:
-	case '\t':
-		e->row = (e->row + 1) % ROW_COUNT;
-		return true;
 	case KEY_LEFT:
 	case KEY_RIGHT:
 		if (e->row == ROW_CHANNELS)

@@ -198,14 +198,9 @@ static bool export_key(struct console *c, void *st, int ch)
 		}
 		return true;
 	}
+	if (console_form_move(&e->row, ROW_COUNT, ch))
+		return true;
 	switch (ch) {
-	case KEY_UP:
-		e->row = (e->row + ROW_COUNT - 1) % ROW_COUNT;
-		return true;
-	case KEY_DOWN:
-	case '\t':
-		e->row = (e->row + 1) % ROW_COUNT;
-		return true;
 	case KEY_LEFT:
 	case KEY_RIGHT: {
 		int d = ch == KEY_RIGHT ? 1 : -1;

@@ -173,6 +173,17 @@ static void erase_before(struct console_field *f)
 	f->cur = start;
 }
 
+bool console_form_move(int *row, int n, int ch)
+{
+	if (ch == KEY_UP || ch == KEY_BTAB)
+		*row = (*row + n - 1) % n;
+	else if (ch == KEY_DOWN || ch == '\t')
+		*row = (*row + 1) % n;
+	else
+		return false;
+	return true;
+}
+
 enum console_field_result console_field_key(struct console_field *f, int ch)
 {
 	bool typed = ch >= 32 && ch <= 255 && ch != 127;

@@ -244,14 +244,9 @@ static bool rig_key(struct console *c, void *st, int ch)
 			me->editing = false;
 		return true;
 	}
+	if (console_form_move(&e->row, ROW_COUNT, ch))
+		return true;
 	switch (ch) {
-	case KEY_UP:
-		e->row = (e->row + ROW_COUNT - 1) % ROW_COUNT;
-		return true;
-	case KEY_DOWN:
-	case '\t':
-		e->row = (e->row + 1) % ROW_COUNT;
-		return true;
 	case KEY_LEFT:
 	case KEY_RIGHT:
 		if (e->row == ROW_CORNER)
