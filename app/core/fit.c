@@ -472,7 +472,8 @@ static bool descend(const struct model *md, double *th, double *val)
 	return ok;
 }
 
-/* Grid of starting points, then a descent (see descend) from the best three of them. The binomial
+/* Grid of starting points, then a descent (see descend) from the best of them and a gradient search
+ * from the next two (a full descent while none has converged). The binomial
  * likelihood of these models is close to unimodal in (α, β) for a given λ, so a coarse grid
  * (9 positions × 5 slopes × 2 lapse rates, 90 likelihood evaluations) finds the right basin.
  * Returns true on convergence with the best converged θ in TH (the best θ seen when none
@@ -527,7 +528,17 @@ static bool ml_search(const struct model *md, double *th, double *best_val)
 	*best_val = INFINITY;
 	for (int i = 0; i < NSTART && isfinite(sval[i]); i++) {
 		double t[3], v;
-		bool c = descend(md, memcpy(t, start[i], sizeof t), &v);
+		memcpy(t, start[i], sizeof t);
+		bool c;
+		if (ok) {
+			/* Once one descent converged, a gradient search alone (a fraction of the
+			 * cost) tells whether another start lies in a better basin. */
+			c = bfgs_search(md, t, &v);
+			if (!c || !(v < *best_val - 1e-9 * (1 + fabs(*best_val))))
+				continue;   /* the same optimum (to rounding) or a poorer one */
+		} else {
+			c = descend(md, t, &v);
+		}
 		if ((c && (!ok || v < *best_val)) || (!ok && !c && v < *best_val)) {
 			memcpy(th, t, sizeof t);
 			*best_val = v;
