@@ -77,6 +77,9 @@ char *cmd_rig_path_find(const char *explicit_path, bool *is_demo);
 /* Resolves a path shipped with the program (for example "protocols/demo.ini"): the current folder
  * first, then beside the executable's source tree. Returns a malloc'd path or NULL. */
 char *cmd_asset_path(const char *rel);
+/* The --schema of a reader (sessions, export, report): 0 when SCHEMA is NULL, or names a schema
+ * and DB is a PostgreSQL server; else prints CMD's usage error and returns EXIT_USAGE. */
+int cmd_reader_schema(const char *cmd, const char *db, const char *schema);
 /* Parses a whole unsigned decimal number; returns 0 or -1. */
 int cmd_parse_u64(const char *s, unsigned long long *out);
 /* Parses a finite double; returns 0 or -1. */

@@ -93,6 +93,9 @@ int store_open(const char *path, struct store **out, char **err);
  * written, so readers work on a full disk and in read-only folders; an older schema is read
  * through a migrated temporary copy (removed by store_close). */
 int store_open_existing(const char *path, struct store **out, char **err);
+/* As store_open_existing, reading schema SCHEMA (NULL: tachist) when PATH is a PostgreSQL server;
+ * SCHEMA must be NULL for a file. */
+int store_open_reader(const char *path, const char *schema, struct store **out, char **err);
 void store_close(struct store *s);
 /* Path as given to store_open. */
 const char *store_path(const struct store *s);

@@ -22,9 +22,10 @@ static int fail(char *err)
 	return EXIT_PROBLEMS;
 }
 
-enum { O_DB, O_FORMAT, O_SESSION, O_SUBJECT, O_OUT };
+enum { O_DB, O_SCHEMA, O_FORMAT, O_SESSION, O_SUBJECT, O_OUT };
 const struct opts_row cmd_export_opts[] = {
-	[O_DB] = {"db", "FILE", "the database to read (default tachist.db)"},
+	[O_DB] = {"db", "FILE", "the database to read (default tachist.db), or a PostgreSQL server"},
+	[O_SCHEMA] = {"schema", "NAME", "with --db SERVER: the schema to read (default tachist)"},
 	[O_FORMAT] = {"format", "FORMAT", "csv, tsv, json or bids (required)"},
 	[O_SESSION] = {"session", "ID", "only this session (its ID or a unique start of it)"},
 	[O_SUBJECT] = {"subject", "ID", "only this subject's sessions"},
@@ -35,12 +36,13 @@ const struct opts_row cmd_export_opts[] = {
 int cmd_export(int argc, char **argv)
 {
 	const char *db = "tachist.db", *format = NULL, *session = NULL, *subject = NULL;
-	const char *out = NULL, *v;
+	const char *out = NULL, *schema = NULL, *v;
 	struct opts p;
 	opts_begin(&p, "export", cmd_export_opts, argc, argv);
 	for (int k; (k = opts_next(&p, &v)) != OPTS_DONE;) {
 		switch (k) {
 		case O_DB: db = v; break;
+		case O_SCHEMA: schema = v; break;
 		case O_FORMAT: format = v; break;
 		case O_SESSION: session = v; break;
 		case O_SUBJECT: subject = v; break;
@@ -60,9 +62,11 @@ int cmd_export(int argc, char **argv)
 		return usage("bids writes a folder: give --out DIR");
 	if (subject && !store_subject_valid(subject))
 		return usage("--subject takes letters and digits only");
+	if (cmd_reader_schema("export", db, schema))
+		return EXIT_USAGE;
 	struct store *s;
 	char *err = NULL;
-	if (store_open_existing(db, &s, &err))
+	if (store_open_reader(db, schema, &s, &err))
 		return fail(err);
 	struct export_stats st;
 	int rc;

@@ -72,7 +72,7 @@ static void intern_clear(struct intern *t)
 /* ---- options ---- */
 
 struct ropts {
-	const char *db, *session, *subject, *plots, *by;
+	const char *db, *schema, *session, *subject, *plots, *by;
 	bool json, all;
 	struct analysis_opts a;
 	const char *shape, *lapse;
@@ -89,10 +89,11 @@ static int report_threads(void)
 	return n < 1 ? 1 : n > 8 ? 8 : (int)n;
 }
 
-enum { O_DB, O_SESSION, O_SUBJECT, O_ALL, O_BY, O_SHAPE, O_LAPSE, O_PC, O_BOOT, O_SEED, O_CI,
+enum { O_DB, O_SCHEMA, O_SESSION, O_SUBJECT, O_ALL, O_BY, O_SHAPE, O_LAPSE, O_PC, O_BOOT, O_SEED, O_CI,
        O_NOFIT, O_JSON, O_PLOTS };
 const struct opts_row cmd_report_opts[] = {
-	[O_DB] = {"db", "FILE", "the database to read (default tachist.db)"},
+	[O_DB] = {"db", "FILE", "the database to read (default tachist.db), or a PostgreSQL server"},
+	[O_SCHEMA] = {"schema", "NAME", "with --db SERVER: the schema to read (default tachist)"},
 	[O_SESSION] = {"session", "ID", "only this session"},
 	[O_SUBJECT] = {"subject", "ID", "only this subject's sessions"},
 	[O_ALL] = {"all", NULL, "every session in the database (the default)"},
@@ -127,6 +128,7 @@ static int parse_args(int argc, char **argv, struct ropts *o)
 		case O_ALL: o->all = true; break;
 		case O_NOFIT: o->nofit = true; break;
 		case O_DB: o->db = v; break;
+		case O_SCHEMA: o->schema = v; break;
 		case O_SESSION: o->session = v; break;
 		case O_SUBJECT: o->subject = v; break;
 		case O_PLOTS: o->plots = v; break;
@@ -155,6 +157,8 @@ static int parse_args(int argc, char **argv, struct ropts *o)
 		default: return EXIT_USAGE;
 		}
 	}
+	if (cmd_reader_schema("report", o->db, o->schema))
+		return EXIT_USAGE;
 	if ((o->session != NULL) + (o->subject != NULL) + o->all > 1)
 		return opts_usage("report", "choose one of --session, --subject and --all");
 	enum psyfn_shape sh;
@@ -937,7 +941,7 @@ int cmd_report(int argc, char **argv)
 		return EXIT_USAGE;
 	struct store *s;
 	char *err = NULL;
-	if (store_open_existing(o.db, &s, &err) < 0) {
+	if (store_open_reader(o.db, o.schema, &s, &err) < 0) {
 		fprintf(stderr, "tachist report: %s (run a session first, or name one with --db)\n",
 			err);
 		free(err);

@@ -44,9 +44,10 @@ static cJSON *session_json(const struct store_session *ss)
 	return o;
 }
 
-enum { O_DB, O_SUBJECT, O_JSON };
+enum { O_DB, O_SCHEMA, O_SUBJECT, O_JSON };
 const struct opts_row cmd_sessions_opts[] = {
-	[O_DB] = {"db", "FILE", "the database to read (default tachist.db)"},
+	[O_DB] = {"db", "FILE", "the database to read (default tachist.db), or a PostgreSQL server"},
+	[O_SCHEMA] = {"schema", "NAME", "with --db SERVER: the schema to read (default tachist)"},
 	[O_SUBJECT] = {"subject", "ID", "only this subject's sessions"},
 	[O_JSON] = {"json", NULL, "one JSON document on standard output"},
 	OPTS_END,
@@ -54,22 +55,25 @@ const struct opts_row cmd_sessions_opts[] = {
 
 int cmd_sessions(int argc, char **argv)
 {
-	const char *db = "tachist.db", *subject = NULL, *val;
+	const char *db = "tachist.db", *subject = NULL, *schema = NULL, *val;
 	bool json = false;
 	struct opts p;
 	opts_begin(&p, "sessions", cmd_sessions_opts, argc, argv);
 	for (int k; (k = opts_next(&p, &val)) != OPTS_DONE;) {
 		switch (k) {
 		case O_DB: db = val; break;
+		case O_SCHEMA: schema = val; break;
 		case O_SUBJECT: subject = val; break;
 		case O_JSON: json = true; break;
 		case OPTS_ARG: return opts_usage("sessions", "unexpected argument '%s'", val);
 		default: return EXIT_USAGE;
 		}
 	}
+	if (cmd_reader_schema("sessions", db, schema))
+		return EXIT_USAGE;
 	struct store *s;
 	char *err = NULL;
-	if (store_open_existing(db, &s, &err)) {
+	if (store_open_reader(db, schema, &s, &err)) {
 		fprintf(stderr, "tachist sessions: %s\n", err);
 		free(err);
 		return EXIT_PROBLEMS;

@@ -7,6 +7,8 @@
 #include <unistd.h>
 
 #include "cmd.h"
+#include "opts.h"
+#include "store_pg.h"
 
 bool cmd_wants_help(int argc, char **argv)
 {
@@ -106,5 +108,17 @@ int cmd_parse_double(const char *s, double *out)
 	if (errno || *end || !isfinite(v))
 		return -1;
 	*out = v;
+	return 0;
+}
+
+int cmd_reader_schema(const char *cmd, const char *db, const char *schema)
+{
+	if (!schema)
+		return 0;
+	if (!store_pg_is_conninfo(db))
+		return opts_usage(cmd, "--schema needs a PostgreSQL server for --db (postgresql://...)");
+	if (!store_pg_schema_valid(schema))
+		return opts_usage(cmd, "'%s' is not a schema name tachist uses (lower-case letters, "
+				  "digits and '_', starting with a letter or '_')", schema);
 	return 0;
 }

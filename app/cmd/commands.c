@@ -49,12 +49,13 @@ static const struct cmd commands[] = {
 	 "the rig's [input] device, shows each press's kernel time beside SDL's and that lag.",
 	 cmd_timing_opts, cmd_timing},
 	{"sessions", "list the sessions in a database",
-	 "tachist sessions [--db FILE] [--subject ID] [--json]\n",
+	 "tachist sessions [--db FILE|SERVER [--schema NAME]] [--subject ID] [--json]\n",
 	 "Lists each session with its subject, protocol, status and number of trials, so that an "
 	 "interrupted one can be found and resumed. Reads only.",
 	 cmd_sessions_opts, cmd_sessions},
 	{"report", "accuracy, d', fits, confusions and timing for sessions",
-	 "tachist report [--db FILE] [--session ID | --subject ID | --all] [--by COLUMNS]\n"
+	 "tachist report [--db FILE|SERVER [--schema NAME]] [--session ID | --subject ID | --all]\n"
+	 "               [--by COLUMNS]\n"
 	 "               [--shape weibull|logistic|normal] [--lapse free|0|VALUE] [--pc P]\n"
 	 "               [--boot N] [--seed N] [--ci wilson|exact] [--no-fit] [--json] [--plots DIR]\n",
 	 "Summarises the chosen sessions (all of them unless one is chosen): proportion correct with "
@@ -62,7 +63,8 @@ static const struct cmd commands[] = {
 	 "matrix and the timing quality of every trial. --plots writes SVG figures and an index.html.",
 	 cmd_report_opts, cmd_report},
 	{"export", "write trial tables (CSV, TSV, JSON, BIDS)",
-	 "tachist export [--db FILE] --format csv|tsv|json|bids [--session ID | --subject ID] --out PATH\n",
+	 "tachist export [--db FILE|SERVER [--schema NAME]] --format csv|tsv|json|bids\n"
+	 "               [--session ID | --subject ID] --out PATH\n",
 	 "Writes one row per trial with the same columns in every format. A table is written to a "
 	 "temporary file and renamed into place when complete; --out - writes it to standard output. "
 	 "bids writes a folder.",

@@ -424,10 +424,11 @@ fail:
 }
 
 /* A PostgreSQL server as a reader's database: its schema copied into a temporary file. */
-static int open_server_copy(const char *conninfo, struct store **out, char **err)
+static int open_server_copy(const char *conninfo, const char *schema, struct store **out,
+			    char **err)
 {
 	char *tmp;
-	if (store_pg_fetch(conninfo, STORE_PG_DEFAULT_SCHEMA, &tmp, err))
+	if (store_pg_fetch(conninfo, schema ? schema : STORE_PG_DEFAULT_SCHEMA, &tmp, err))
 		return -1;
 	struct store *s;
 	if (store_open_raw(tmp, OPEN_READ, &s, err)) {
@@ -448,10 +449,16 @@ static int open_server_copy(const char *conninfo, struct store **out, char **err
 
 int store_open_existing(const char *path, struct store **out, char **err)
 {
+	return store_open_reader(path, NULL, out, err);
+}
+
+int store_open_reader(const char *path, const char *schema, struct store **out, char **err)
+{
 	assert(path && out);
 	*out = NULL;
 	if (store_pg_is_conninfo(path))
-		return open_server_copy(path, out, err);
+		return open_server_copy(path, schema, out, err);
+	assert(!schema);
 	struct stat sb;
 	if (stat(path, &sb) != 0) {
 		store_set_err(err, "no database at %s", path);

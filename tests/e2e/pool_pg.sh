@@ -134,6 +134,17 @@ sleep 0.5
 kill -TERM "$fp"; wait "$fp"
 expect_eq "pool --follow sends the ended session and leaves the running one" "ENDED" \
   "$(pg_sql "SELECT string_agg(subject, ' ') FROM followed.sessions")"
+# Readers take --schema for a server's other schema, and refuse it for a file.
+"$TACHIST" sessions --db "$PGCONN" --schema followed >"$WORK/fs.out" 2>"$WORK/fs.err"
+check "sessions --db SERVER --schema followed lists that schema's one session" \
+  sh -c "grep -c ENDED '$WORK/fs.out' | grep -qx 1 && ! grep -q RIGA '$WORK/fs.out'"
+"$TACHIST" export --db "$PGCONN" --schema followed --format csv --out "$WORK/fs.csv" 2>/dev/null
+expect_eq "export --schema followed writes that schema's 3 trials" 4 "$(wc -l <"$WORK/fs.csv")"
+expect_exit "report --schema with a file for --db is a usage error" 2 "$TACHIST" report --db "$WORK/all.db" --schema followed
+check "saying --schema needs a server" grep -q -- "--schema needs a PostgreSQL server for --db" "$WORK/last.err"
+expect_exit "a reader's bad schema name is a usage error" 2 "$TACHIST" sessions --db "$PGCONN" --schema 'x; drop'
+expect_exit "a schema without tachist data is refused" 1 "$TACHIST" sessions --db "$PGCONN" --schema nothing_here
+check "naming it" grep -q "no tachist data in schema nothing_here" "$WORK/last.err"
 "$TACHIST" pool --into "host=$WORK/nowhere user=tachist dbname=postgres" --follow --interval 0.1 "$WORK/a.db" >"$WORK/f.out" 2>"$WORK/f.err" &
 fp=$!
 sleep 4
