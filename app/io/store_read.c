@@ -26,7 +26,6 @@ void store_read_row(sqlite3_stmt *st, int first, const struct store_table *t, vo
 		if (c->off == STORE_NO_FIELD)
 			continue;
 		char *p = (char *)row + c->off;
-		bool null = sqlite3_column_type(st, k) == SQLITE_NULL;
 		switch (c->type) {
 		case STORE_TEXT:
 		case STORE_TIME: {
@@ -43,7 +42,8 @@ void store_read_row(sqlite3_stmt *st, int first, const struct store_table *t, vo
 			break;
 		}
 		case STORE_INT: {
-			int v = null ? (c->missing == STORE_IF_NEG ? -1 : 0) : sqlite3_column_int(st, k);
+			int v = sqlite3_column_type(st, k) == SQLITE_NULL
+				? (c->missing == STORE_IF_NEG ? -1 : 0) : sqlite3_column_int(st, k);
 			memcpy(p, &v, sizeof v);
 			break;
 		}
@@ -79,7 +79,7 @@ void store_read_row(sqlite3_stmt *st, int first, const struct store_table *t, vo
 			break;
 		}
 		if (c->missing == STORE_IF_UNFLAGGED) {
-			bool has = !null;
+			bool has = sqlite3_column_type(st, k) != SQLITE_NULL;
 			memcpy((char *)row + c->has_off, &has, sizeof has);
 		}
 	}
