@@ -142,7 +142,7 @@ LEVELS    ?= -O0 -O1 -O2 -O3
 CC_TARGET ?= check-build
 compilers: deps
 	@for cc in $(COMPILERS); do for o in $(LEVELS); do echo "compilers: $$cc $$o"; \
-	  $(MAKE) --no-print-directory Q=@ CC=$$cc BUILD=build/cc/$$cc$$o CFLAGS="$$o -g" \
+	  $(MAKE) --no-print-directory $(PAR) Q=@ CC=$$cc BUILD=build/cc/$$cc$$o CFLAGS="$$o -g" \
 	    $(CC_TARGET) >build/cc-$$cc$$o.log 2>&1 || { tail -n 30 build/cc-$$cc$$o.log; exit 1; }; \
 	done; done; echo "compilers: $(COMPILERS) at $(LEVELS): no warnings"
 
