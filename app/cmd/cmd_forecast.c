@@ -28,7 +28,7 @@
 #define MAX_GRID 32
 
 struct fopts {
-	const char *protocol, *rig, *observer, *db, *session, *subject, *plot;
+	const char *protocol, *rig, *observer, *db, *schema, *session, *subject, *plot;
 	bool all, json, log_units;
 	char *levels_arg[MAX_SETS];
 	int nlevels_arg;
@@ -74,11 +74,12 @@ struct ctx {
 	bool tty;
 };
 
-enum { O_OBSERVER, O_DB, O_SESSION, O_SUBJECT, O_ALL, O_RIG, O_LEVELS, O_TRIALS, O_OBSERVERS,
+enum { O_OBSERVER, O_DB, O_SCHEMA, O_SESSION, O_SUBJECT, O_ALL, O_RIG, O_LEVELS, O_TRIALS, O_OBSERVERS,
        O_RUNS, O_BOOT, O_SEED, O_THREADS, O_TARGET, O_LOG, O_JSON, O_PLOT };
 const struct opts_row cmd_forecast_opts[] = {
 	[O_OBSERVER] = {"observer", "model:SPEC", "simulate this model observer (see run --observer)"},
-	[O_DB] = {"db", "FILE", "take the observer from a pilot in this database"},
+	[O_DB] = {"db", "FILE", "take the observer from a pilot in this database (or a server)"},
+	[O_SCHEMA] = {"schema", "NAME", "with --db SERVER: the schema to read (default tachist)"},
 	[O_SESSION] = {"session", "ID", "the pilot is this session"},
 	[O_SUBJECT] = {"subject", "ID", "the pilot is this subject's sessions"},
 	[O_ALL] = {"all", NULL, "the pilot is every session in the database"},
@@ -136,6 +137,7 @@ static int parse_args(int argc, char **argv, struct fopts *o)
 		switch (k) {
 		case O_OBSERVER: o->observer = v; break;
 		case O_DB: o->db = v; break;
+		case O_SCHEMA: o->schema = v; break;
 		case O_SESSION: o->session = v; break;
 		case O_SUBJECT: o->subject = v; break;
 		case O_ALL: o->all = true; break;
@@ -189,6 +191,10 @@ static int parse_args(int argc, char **argv, struct fopts *o)
 		return opts_usage("forecast", "name the protocol");
 	if (!o->observer == !o->db)
 		return opts_usage("forecast", "give either --observer model:SPEC or --db FILE (a pilot)");
+	if (o->db && cmd_reader_schema("forecast", o->db, o->schema))
+		return EXIT_USAGE;
+	if (!o->db && o->schema)
+		return opts_usage("forecast", "--schema chooses where --db reads a pilot");
 	if (!o->db && (o->session || o->subject || o->all))
 		return opts_usage("forecast", "--session, --subject and --all choose a pilot in --db");
 	if ((o->session != NULL) + (o->subject != NULL) + o->all > 1)
@@ -202,7 +208,7 @@ static int pilot_truth(struct ctx *c)
 {
 	struct store *s;
 	char *err = NULL;
-	if (store_open_existing(c->o.db, &s, &err) < 0) {
+	if (store_open_reader(c->o.db, c->o.schema, &s, &err) < 0) {
 		fprintf(stderr, "tachist forecast: %s\n", err);
 		free(err);
 		return -1;

@@ -77,7 +77,8 @@ static const struct cmd commands[] = {
 	 "support is said in words and exits 1; no number is printed for it.",
 	 cmd_fit_opts, cmd_fit},
 	{"forecast", "simulate a study before running it: interval widths for a grid of designs",
-	 "tachist forecast PROTOCOL (--observer model:SPEC | --db FILE [--session ID | --subject ID | --all])\n"
+	 "tachist forecast PROTOCOL (--observer model:SPEC | --db FILE|SERVER [--schema NAME]\n"
+	 "                 [--session ID | --subject ID | --all])\n"
 	 "                 [--rig FILE] [--levels A,B,...]... [--trials N,N,...] [--observers N,N,...]\n"
 	 "                 [--runs N] [--boot N] [--seed N] [--threads N] [--target-width W] [--log]\n"
 	 "                 [--json] [--plot FILE.svg]\n",

@@ -147,6 +147,9 @@ assert d["designs"][2]["name"] == "adaptive pair" and d["designs"][2]["levels"] 
 expect_exit "neither --observer nor --db is a usage error" 2 F "$ROOT/protocols/demo.ini"
 check "it says what to give" grep -q 'give either --observer model:SPEC or --db FILE' "$WORK/last.err"
 expect_exit "both is a usage error" 2 F "$ROOT/protocols/demo.ini" --observer "$MODEL" --db x.db
+expect_exit "--schema with a file for --db is a usage error" 2 F "$ROOT/protocols/demo.ini" --db x.db --schema lab
+check "saying it needs a server" grep -q -- "--schema needs a PostgreSQL server for --db" "$WORK/last.err"
+expect_exit "--schema without --db is a usage error" 2 F "$ROOT/protocols/demo.ini" --observer "$MODEL" --schema lab
 expect_exit "a bad --trials list is a usage error" 2 F "$ROOT/protocols/demo.ini" --observer "$MODEL" --trials 10,x
 expect_exit "a bad --levels set is a problem" 1 F "$ROOT/protocols/demo.ini" --rig "$RIG" --observer "$MODEL" --levels 3
 expect_exit "a bad model spec is a problem" 1 F "$ROOT/protocols/demo.ini" --rig "$RIG" --observer model:shape=cubic
