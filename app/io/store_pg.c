@@ -304,7 +304,11 @@ static int pg_connect(const char *conninfo, const char *schema, bool create,
 	struct store_pg *pg = xcalloc(1, sizeof *pg);
 	pg->shown = store_pg_shown(conninfo);
 	pg->schema = xstrdup(schema);
-	pg->conn = PQconnectdb(conninfo);
+	/* The connection text as dbname with expand_dbname, so a URI or keyword string works as
+	 * with PQconnectdb; the server lists us as "tachist" unless the text names an application. */
+	const char *const keys[] = {"dbname", "fallback_application_name", NULL};
+	const char *const vals[] = {conninfo, "tachist", NULL};
+	pg->conn = PQconnectdbParams(keys, vals, 1);
 	if (!pg->conn || PQstatus(pg->conn) != CONNECTION_OK) {
 		char *m = pg_message(pg->conn, NULL);
 		store_set_err(err, "%s: cannot connect to the PostgreSQL server: %s", pg->shown, m);

@@ -123,6 +123,14 @@ expect_exit "a source integer beyond the server's integer column fails" 1 "$TACH
 check "naming the column and the value" grep -q "column frames_actual holds a value the server's integer cannot take ('3000000000')" "$WORK/last.err"
 expect_eq "and nothing of that session is on the server" 0 "$(pg_sql "SELECT count(*) FROM tachist.sessions WHERE subject = 'WIDE'")"
 
+# -- the server lists tachist's connections under its name -----------------------------------
+"$TACHIST" pool --into "$PGCONN" --follow --interval 0.1 "$WORK/a.db" >/dev/null 2>&1 &
+ap=$!
+n=0
+while [ "$n" -lt 300 ] && [ "$(pg_sql "SELECT count(*) FROM pg_stat_activity WHERE application_name = 'tachist'")" != 1 ]; do sleep 0.1; n=$((n + 1)); done
+expect_eq "a pooling connection shows as application tachist on the server" 1 "$(pg_sql "SELECT count(*) FROM pg_stat_activity WHERE application_name = 'tachist'")"
+kill -TERM "$ap"; wait "$ap"
+
 # -- pool --follow: ended sessions only; an unreachable server is retried ----------------------
 "$FILL" "$WORK/f.db" 1 3 --subject RUNNING --running >/dev/null
 "$FILL" "$WORK/f.db" 1 3 --subject ENDED >/dev/null
