@@ -423,6 +423,24 @@ fail:
 	return -1;
 }
 
+/* A temporary copy TMP (a migrated file, or a server's schema) opened for a reader, named SHOWN
+ * in messages; both are taken over, and TMP is removed on failure as by store_close. */
+static int open_temp_reader(char *tmp, char *shown, struct store **out, char **err)
+{
+	struct store *s;
+	if (store_open_raw(tmp, OPEN_READ, &s, err)) {
+		store_unlink_db(tmp);
+		free(tmp);
+		free(shown);
+		return -1;
+	}
+	s->reader = true;
+	s->tmp = tmp;
+	s->shown = shown;
+	*out = s;
+	return 0;
+}
+
 /* A PostgreSQL server as a reader's database: its schema copied into a temporary file. */
 static int open_server_copy(const char *conninfo, const char *schema, struct store **out,
 			    char **err)
@@ -431,14 +449,8 @@ static int open_server_copy(const char *conninfo, const char *schema, struct sto
 	if (store_pg_fetch(conninfo, schema ? schema : STORE_PG_DEFAULT_SCHEMA, &tmp, err))
 		return -1;
 	struct store *s;
-	if (store_open_raw(tmp, OPEN_READ, &s, err)) {
-		store_unlink_db(tmp);
-		free(tmp);
+	if (open_temp_reader(tmp, store_pg_shown(conninfo), &s, err))
 		return -1;
-	}
-	s->reader = true;
-	s->tmp = tmp;
-	s->shown = store_pg_shown(conninfo);
 	if (store_exec(s, "PRAGMA query_only = 1", err, "setting up")) {
 		store_close(s);
 		return -1;
@@ -478,16 +490,9 @@ int store_open_reader(const char *path, const char *schema, struct store **out, 
 		/* An old schema: read a migrated copy; the file itself is not written. */
 		store_close(s);
 		char *tmp;
-		if (store_migrated_copy(path, &tmp, err))
+		if (store_migrated_copy(path, &tmp, err) ||
+		    open_temp_reader(tmp, xstrdup(path), &s, err))
 			return -1;
-		if (store_open_raw(tmp, OPEN_READ, &s, err)) {
-			store_unlink_db(tmp);
-			free(tmp);
-			return -1;
-		}
-		s->reader = true;
-		s->tmp = tmp;
-		s->shown = xstrdup(path);
 	}
 	if (store_exec(s, "PRAGMA query_only = 1", err, "setting up")) {
 		store_close(s);
