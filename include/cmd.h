@@ -77,9 +77,10 @@ char *cmd_rig_path_find(const char *explicit_path, bool *is_demo);
 /* Resolves a path shipped with the program (for example "protocols/demo.ini"): the current folder
  * first, then beside the executable's source tree. Returns a malloc'd path or NULL. */
 char *cmd_asset_path(const char *rel);
-/* The --schema of a reader (sessions, export, report): 0 when SCHEMA is NULL, or names a schema
- * and DB is a PostgreSQL server; else prints CMD's usage error and returns EXIT_USAGE. */
-int cmd_reader_schema(const char *cmd, const char *db, const char *schema);
+/* A --schema option given with TARGET, the value of OPT (--into for pool, --db for the readers):
+ * 0 when SCHEMA is NULL, or a valid schema name and TARGET a PostgreSQL server; else prints
+ * CMD's usage error and returns EXIT_USAGE. */
+int cmd_server_schema(const char *cmd, const char *opt, const char *target, const char *schema);
 /* Parses a whole unsigned decimal number; returns 0 or -1. */
 int cmd_parse_u64(const char *s, unsigned long long *out);
 /* Parses a finite double; returns 0 or -1. */

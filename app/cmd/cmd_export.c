@@ -62,7 +62,7 @@ int cmd_export(int argc, char **argv)
 		return usage("bids writes a folder: give --out DIR");
 	if (subject && !store_subject_valid(subject))
 		return usage("--subject takes letters and digits only");
-	if (cmd_reader_schema("export", db, schema))
+	if (cmd_server_schema("export", "--db", db, schema))
 		return EXIT_USAGE;
 	struct store *s;
 	char *err = NULL;

@@ -191,7 +191,7 @@ static int parse_args(int argc, char **argv, struct fopts *o)
 		return opts_usage("forecast", "name the protocol");
 	if (!o->observer == !o->db)
 		return opts_usage("forecast", "give either --observer model:SPEC or --db FILE (a pilot)");
-	if (o->db && cmd_reader_schema("forecast", o->db, o->schema))
+	if (o->db && cmd_server_schema("forecast", "--db", o->db, o->schema))
 		return EXIT_USAGE;
 	if (!o->db && o->schema)
 		return opts_usage("forecast", "--schema chooses where --db reads a pilot");

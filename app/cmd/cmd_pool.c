@@ -210,16 +210,12 @@ int cmd_pool(int argc, char **argv)
 		rc = opts_usage("pool", "give --into FILE or a server, and at least one database");
 		goto done;
 	}
-	if (!server && (follow_on || schema_given)) {
-		rc = opts_usage("pool", "--%s needs a PostgreSQL server for --into (postgresql://...)",
-				follow_on ? "follow" : "schema");
+	if (!server && follow_on) {
+		rc = opts_usage("pool", "--follow needs a PostgreSQL server for --into (postgresql://...)");
 		goto done;
 	}
-	if (server && !store_pg_schema_valid(schema)) {
-		rc = opts_usage("pool", "'%s' is not a schema name tachist uses (lower-case letters, "
-				"digits and '_', starting with a letter or '_')", schema);
+	if ((rc = cmd_server_schema("pool", "--into", into, schema_given ? schema : NULL)))
 		goto done;
-	}
 	if (follow_on)
 		rc = follow(into, schema, srcs, nsrc, interval);
 	else if (server)

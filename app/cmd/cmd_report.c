@@ -157,7 +157,7 @@ static int parse_args(int argc, char **argv, struct ropts *o)
 		default: return EXIT_USAGE;
 		}
 	}
-	if (cmd_reader_schema("report", o->db, o->schema))
+	if (cmd_server_schema("report", "--db", o->db, o->schema))
 		return EXIT_USAGE;
 	if ((o->session != NULL) + (o->subject != NULL) + o->all > 1)
 		return opts_usage("report", "choose one of --session, --subject and --all");

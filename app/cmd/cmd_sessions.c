@@ -69,7 +69,7 @@ int cmd_sessions(int argc, char **argv)
 		default: return EXIT_USAGE;
 		}
 	}
-	if (cmd_reader_schema("sessions", db, schema))
+	if (cmd_server_schema("sessions", "--db", db, schema))
 		return EXIT_USAGE;
 	struct store *s;
 	char *err = NULL;

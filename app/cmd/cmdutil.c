@@ -111,12 +111,13 @@ int cmd_parse_double(const char *s, double *out)
 	return 0;
 }
 
-int cmd_reader_schema(const char *cmd, const char *db, const char *schema)
+int cmd_server_schema(const char *cmd, const char *opt, const char *target, const char *schema)
 {
 	if (!schema)
 		return 0;
-	if (!store_pg_is_conninfo(db))
-		return opts_usage(cmd, "--schema needs a PostgreSQL server for --db (postgresql://...)");
+	if (!store_pg_is_conninfo(target))
+		return opts_usage(cmd, "--schema needs a PostgreSQL server for %s (postgresql://...)",
+				  opt);
 	if (!store_pg_schema_valid(schema))
 		return opts_usage(cmd, "'%s' is not a schema name tachist uses (lower-case letters, "
 				  "digits and '_', starting with a letter or '_')", schema);

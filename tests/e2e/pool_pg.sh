@@ -86,6 +86,8 @@ expect_exit "a refused password fails" 1 env PGPASSWORD=wrong "$TACHIST" pool --
 check "with the server's reason" grep -q "password authentication failed" "$WORK/last.err"
 expect_exit "a bad schema name is a usage error" 2 "$TACHIST" pool --into "$PGCONN" --schema 'x; drop' "$WORK/a.db"
 expect_exit "--follow into a file is a usage error" 2 "$TACHIST" pool --into "$WORK/all.db" --follow "$WORK/a.db"
+expect_exit "--schema into a file is a usage error" 2 "$TACHIST" pool --into "$WORK/all.db" --schema lab "$WORK/a.db"
+check "saying --schema needs a server for --into" grep -q -- "--schema needs a PostgreSQL server for --into" "$WORK/last.err"
 expect_eq "the refusals left the server as it was" "4 32 30 5" "$(srv_count tachist)"
 
 # -- a connection dropped in the middle of a session -------------------------------------------
