@@ -7,7 +7,7 @@
 # Make cannot name a target with a space in it, and $WORK lies under $TMPDIR, which may have one:
 # the build goes in a folder of its own under build/, relative to the checkout.
 B=build/e2e-column-table.$$
-trap 'rm -rf "$WORK" "$B" ${USERDIR:+"$USERDIR"}' EXIT
+on_exit 'rm -rf "$B"'
 if nice make -s BUILD="$B" CFLAGS="-O0 -DTACHIST_TEST_COLUMN" "$B/tests/test_export" "$B/tests/test_store" >"$WORK/make.out" 2>&1; then
   ok "the test build with one more trial column compiles"
 else

@@ -5,7 +5,11 @@ TACHIST=${TACHIST:-$(pwd)/build/san/tachist}
 ROOT=$(pwd)
 WORK=$(mktemp -d "${TMPDIR:-/tmp}/tachist-e2e.XXXXXX")
 USERDIR=
-trap 'rm -rf "$WORK" ${USERDIR:+"$USERDIR"}' EXIT
+# on_exit CMD: runs CMD (shell text) when the script exits, before the scratch folders go; the
+# latest first. Helpers that start servers or panes register their stop here, never with trap.
+EXIT_CMDS=""
+on_exit() { EXIT_CMDS="$1; $EXIT_CMDS"; }
+trap 'eval "$EXIT_CMDS"; rm -rf "$WORK" ${USERDIR:+"$USERDIR"}' EXIT
 export SDL_VIDEODRIVER=${SDL_VIDEODRIVER:-dummy}
 ok()    { echo "ok - $*"; }
 notok() { echo "not ok - $*"; }
